@@ -1,0 +1,190 @@
+"""Generate the sqlrisk demo data set.
+
+Writes four CSV files beside this script for Brindlewick Software, a
+made-up B2B software company:
+
+* owners.csv         - sellers, with their team and region
+* pipeline.csv       - open deals expected to close in 2027-Q1
+* quota_bands.csv    - floor / target / stretch cut points per seller
+* closed_deals.csv   - closed deals from 2026, used for calibration
+
+The company, regions, teams, product lines and every person's name are
+invented. Any resemblance to real companies or people is a coincidence.
+The random seed is fixed, so every run writes exactly the same files.
+
+Run from the repository root:  python seeds/generate.py
+"""
+
+import csv
+import datetime as dt
+from pathlib import Path
+
+import numpy as np
+
+SEED = 20270101
+OUT_DIR = Path(__file__).resolve().parent
+
+COMPANY = "Brindlewick Software"
+REGIONS = [
+    "Saltmarsh Reach", "Copperfield Basin", "Emberglen Valley",
+    "Frostmere Heights", "Amberline Plains", "Tidewater Bay",
+    "Redcliff Highlands",
+]
+TEAM_KINDS = ["Pathfinders", "Anchors"]  # two teams per region
+PRODUCT_LINES = ["Ledgerloom", "Quillstack", "Brightvault", "Tallyforge", "Nimbleroute"]
+PRODUCT_WEIGHTS = [0.30, 0.25, 0.20, 0.15, 0.10]
+
+FIRST_NAMES = [
+    "Orlena", "Tavish", "Mirabet", "Corwen", "Elspa", "Dariel", "Ysolde",
+    "Fenrick", "Juniva", "Bramwel", "Sorrel", "Calyx", "Odessa", "Perrin",
+    "Lunet", "Hollis", "Wrenna", "Thaddon",
+]
+SURNAMES = [
+    "Ashcombe", "Velloway", "Marchbank", "Quenby", "Thistlewood", "Orrin",
+    "Greyhallow", "Penwarden", "Dunstable", "Kestley", "Brackwater",
+    "Loverin", "Fairholm", "Sallowby", "Wexcombe", "Tarrant",
+]
+
+# Stage name -> mean stated win probability (the seller's own number).
+STAGES = {"scout": 0.10, "scope": 0.25, "pitch": 0.45, "terms": 0.65, "handshake": 0.85}
+STAGE_WEIGHTS = [0.30, 0.25, 0.20, 0.15, 0.10]
+# True win rate = stated * factor: pessimistic early, optimistic late.
+CALIBRATION = {"scout": 1.35, "scope": 1.05, "pitch": 0.92, "terms": 0.88, "handshake": 0.82}
+
+AMOUNT_MEDIAN, AMOUNT_SIGMA, AMOUNT_CAP = 38_000, 1.0, 1_900_000
+NEGATIVE_SHARE = 0.01
+Q1_START, Q1_DAYS = dt.date(2027, 1, 1), 90      # 2027-01-01 .. 2027-03-31
+HIST_START, HIST_DAYS = dt.date(2026, 1, 1), 365  # 2026-01-01 .. 2026-12-31
+
+
+def write_csv(name, header, rows):
+    with open(OUT_DIR / name, "w", newline="") as f:
+        writer = csv.writer(f)
+        writer.writerow(header)
+        writer.writerows(rows)
+    print(f"wrote {name}: {len(rows)} rows")
+
+
+def round_to(x, step):
+    return int(step * round(x / step))
+
+
+def make_owners(rng):
+    """5-9 sellers per region, split over the region's two teams."""
+    first, last = np.meshgrid(FIRST_NAMES, SURNAMES)
+    all_names = [f"{a} {b}" for a, b in zip(first.ravel(), last.ravel())]
+    sizes = rng.integers(5, 10, size=len(REGIONS))
+    names = rng.choice(all_names, size=int(sizes.sum()), replace=False)
+    owners, k = [], 0
+    for region, size in zip(REGIONS, sizes):
+        short = region.split()[0]
+        for i in range(size):
+            team = f"{short} {TEAM_KINDS[i % 2]}"
+            owners.append({"owner_id": f"own_{k + 1:03d}", "owner_name": str(names[k]),
+                           "team": team, "region": region})
+            k += 1
+    return owners
+
+
+def owner_traits(rng, owners):
+    """Optimism shifts stated probabilities; skill scales true win rates."""
+    for o in owners:
+        o["optimism"] = rng.normal(0.0, 0.05)
+        o["skill"] = float(np.exp(rng.normal(0.0, 0.12)))
+
+
+def draw_stage_and_prob(rng, owner, n):
+    stage_names = list(STAGES)
+    idx = rng.choice(len(stage_names), size=n, p=STAGE_WEIGHTS)
+    means = np.array([STAGES[stage_names[i]] for i in idx])
+    stated = means + owner["optimism"] + rng.normal(0.0, 0.06, size=n)
+    stated = np.round(np.clip(stated, 0.02, 0.97), 2)
+    return [stage_names[i] for i in idx], stated
+
+
+def draw_amounts(rng, n, allow_negative):
+    amounts = rng.lognormal(np.log(AMOUNT_MEDIAN), AMOUNT_SIGMA, size=n)
+    amounts = np.clip(amounts, 1_000, AMOUNT_CAP)
+    if allow_negative:
+        credit = rng.random(n) < NEGATIVE_SHARE
+        amounts[credit] = -rng.uniform(500, 20_000, size=credit.sum())
+    return [round_to(a, 100) for a in amounts]
+
+
+def random_dates(rng, start, days, n):
+    offsets = rng.integers(0, days, size=n)
+    return [(start + dt.timedelta(days=int(d))).isoformat() for d in offsets]
+
+
+def make_pipeline(rng, owners):
+    rows = []
+    for o in owners:
+        n = int(rng.integers(15, 61))
+        stages, probs = draw_stage_and_prob(rng, o, n)
+        amounts = draw_amounts(rng, n, allow_negative=True)
+        closes = random_dates(rng, Q1_START, Q1_DAYS, n)
+        products = rng.choice(PRODUCT_LINES, size=n, p=PRODUCT_WEIGHTS)
+        for s, p, a, c, pl in zip(stages, probs, amounts, closes, products):
+            rows.append([None, o["owner_id"], o["region"], s, a, float(p), c, str(pl)])
+    order = rng.permutation(len(rows))  # interleave owners
+    rows = [rows[i] for i in order]
+    for i, r in enumerate(rows):
+        r[0] = f"dl_{i + 1:05d}"
+    return rows
+
+
+def make_quota_bands(rng, owners, pipeline):
+    """Target near each owner's expected pipeline value, with spread."""
+    expected = {o["owner_id"]: 0.0 for o in owners}
+    for r in pipeline:
+        expected[r[1]] += r[4] * r[5]
+    rows = []
+    for o in owners:
+        ev = max(expected[o["owner_id"]], 20_000)
+        target = round_to(ev / np.exp(rng.normal(0.0, 0.2)), 1_000)
+        floor = round_to(target * rng.uniform(0.55, 0.75), 1_000)
+        stretch = round_to(target * rng.uniform(1.25, 1.55), 1_000)
+        rows.append([o["owner_id"], "2027-Q1", floor, target, stretch])
+    return rows
+
+
+def true_win_rate(stages, stated, owner):
+    factor = np.array([CALIBRATION[s] for s in stages])
+    return np.clip(stated * factor * owner["skill"], 0.01, 0.98)
+
+
+def make_closed_deals(rng, owners):
+    rows = []
+    for o in owners:
+        n = int(rng.integers(80, 151))
+        stages, stated = draw_stage_and_prob(rng, o, n)
+        won = (rng.random(n) < true_win_rate(stages, stated, o)).astype(int)
+        amounts = draw_amounts(rng, n, allow_negative=False)
+        closed = random_dates(rng, HIST_START, HIST_DAYS, n)
+        for s, p, w, a, c in zip(stages, stated, won, amounts, closed):
+            rows.append([None, o["owner_id"], s, float(p), int(w), a, c])
+    rows.sort(key=lambda r: (r[6], r[1]))
+    for i, r in enumerate(rows):
+        r[0] = f"cd_{i + 1:05d}"
+    return rows
+
+
+def main():
+    rng = np.random.default_rng(SEED)
+    owners = make_owners(rng)
+    owner_traits(rng, owners)
+    pipeline = make_pipeline(rng, owners)
+    bands = make_quota_bands(rng, owners, pipeline)
+    closed = make_closed_deals(rng, owners)
+
+    write_csv("owners.csv", ["owner_id", "owner_name", "team", "region"],
+              [[o["owner_id"], o["owner_name"], o["team"], o["region"]] for o in owners])
+    write_csv("pipeline.csv", ["deal_id", "owner_id", "region", "stage", "amount",
+                               "win_prob", "expected_close", "product_line"], pipeline)
+    write_csv("quota_bands.csv", ["owner_id", "period", "floor", "target", "stretch"], bands)
+    write_csv("closed_deals.csv", ["deal_id", "owner_id", "stage_at_snapshot", "stated_prob",
+                                   "won", "amount", "closed_on"], closed)
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,23 @@
+"""sqlrisk: the distribution of a sales pipeline's won total, as DuckDB SQL.
+
+>>> import sqlrisk
+>>> con = sqlrisk.connect()
+>>> con.sql("SELECT reach_odds(a, p, 150) FROM (VALUES (100, 0.5), (100, 0.5)) t(a, p)").fetchall()
+[(0.25,)]
+"""
+
+from .errors import InputDataError, ParameterError, QueryLookupError, SqlriskError
+from .registry import OUTCOME_SQL, connect, register
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "connect",
+    "register",
+    "OUTCOME_SQL",
+    "SqlriskError",
+    "InputDataError",
+    "ParameterError",
+    "QueryLookupError",
+    "__version__",
+]

@@ -1,0 +1,285 @@
+"""Arrow <-> numpy for the SQL adapters, with the input checks.
+
+DuckDB hands a vectorised UDF ``pyarrow.ChunkedArray`` arguments (one row per
+group for the aggregates, whose deals arrive as ``LIST(STRUCT(...))``). This
+module turns them into the flat arrays the kernels take, applies the NULL rule
+(a row with a NULL amount or probability is skipped, as SQL aggregates skip
+NULLs) and raises one-line errors for values no kernel should see.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pyarrow as pa
+
+from .errors import InputDataError, ParameterError
+from .kernels.outcome import OutcomeBatch
+
+OUTCOME_FIELDS = ("origin", "step", "mass", "trials", "rounding")
+MASS_TOL = 1e-9
+
+
+def _array(values) -> pa.Array:
+    if isinstance(values, pa.ChunkedArray):
+        return values.combine_chunks() if values.num_chunks != 1 else values.chunk(0)
+    return values
+
+
+def _floats(arr: pa.Array) -> tuple[np.ndarray, np.ndarray]:
+    """Values as float64 (NULL -> NaN) and the NULL mask."""
+    nulls = np.asarray(arr.is_null(), dtype=bool)
+    values = arr.to_numpy(zero_copy_only=False).astype(np.float64, copy=False)
+    return values, nulls
+
+
+def _fmt(x: float) -> str:
+    return repr(float(x))
+
+
+@dataclass
+class Groups:
+    """Rows of ``n`` groups: ``field(name)`` is flat, ``offsets`` delimits groups."""
+
+    offsets: np.ndarray
+    fields: pa.StructArray
+    null_group: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.offsets) - 1
+
+    def field(self, name: str) -> pa.Array:
+        return self.fields.field(name)
+
+
+def read_groups(rows) -> Groups:
+    """Split a ``LIST(STRUCT(...))`` column into flat fields plus offsets."""
+    arr = _array(rows)
+    offsets = np.asarray(arr.offsets, dtype=np.int64)
+    start = offsets[0]
+    stop = offsets[-1]
+    fields = arr.values.slice(start, stop - start)
+    return Groups(offsets - start, fields, np.asarray(arr.is_null(), dtype=bool))
+
+
+def check_probabilities(fn: str, prob: np.ndarray) -> None:
+    bad = ~((prob >= 0.0) & (prob <= 1.0))
+    if not bad.any():
+        return
+    value = prob[np.flatnonzero(bad)[0]]
+    finite = prob[np.isfinite(prob)]
+    hint = "use values in [0, 1]"
+    if np.isfinite(value) and len(finite) and finite.min() >= 0 and finite.max() <= 100:
+        hint = "were percentages given? divide by 100"
+    raise InputDataError(f"{fn}: probability {_fmt(value)} is outside [0, 1] ({hint})")
+
+
+def check_amounts(fn: str, amount: np.ndarray) -> None:
+    bad = ~np.isfinite(amount)
+    if bad.any():
+        value = amount[np.flatnonzero(bad)[0]]
+        raise InputDataError(
+            f"{fn}: amount {_fmt(value)} is not a finite number "
+            "(filter it out or COALESCE it to a real amount)")
+
+
+def deals(fn: str, groups: Groups) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Usable deals (NULL amount or probability skipped), checked, with new offsets."""
+    amount, a_null = _floats(groups.field("a"))
+    prob, p_null = _floats(groups.field("p"))
+    keep = ~(a_null | p_null)
+    if not keep.all():
+        kept = np.concatenate([[0], np.cumsum(keep)])
+        offsets = kept[groups.offsets]
+        amount = amount[keep]
+        prob = prob[keep]
+    else:
+        offsets = groups.offsets
+    check_amounts(fn, amount)
+    check_probabilities(fn, prob)
+    return amount, prob, offsets
+
+
+def check_cuts(fn: str, cuts: np.ndarray, offsets: np.ndarray, what: str = "cuts") -> None:
+    if not np.isfinite(cuts).all():
+        value = cuts[np.flatnonzero(~np.isfinite(cuts))[0]]
+        raise ParameterError(f"{fn}: {what} contain {_fmt(value)}; give finite totals")
+    steps = np.diff(cuts)
+    inner = np.ones(len(steps), dtype=bool)
+    inner[offsets[1:-1] - 1] = False  # ignore the step between two rows
+    bad = inner & (steps <= 0) if len(steps) else inner
+    if bad.any():
+        i = np.flatnonzero(bad)[0]
+        g = np.searchsorted(offsets, i, side="right") - 1
+        row = cuts[offsets[g]:offsets[g + 1]].tolist()
+        raise ParameterError(
+            f"{fn}: {what} {row} are not strictly increasing; sort them and drop duplicates")
+
+
+def check_levels(fn: str, qs: np.ndarray) -> None:
+    bad = ~((qs >= 0.0) & (qs <= 1.0))
+    if bad.any():
+        value = qs[np.flatnonzero(bad)[0]]
+        hint = " (were percentiles given? divide by 100)" if 1 < value <= 100 else ""
+        raise ParameterError(f"{fn}: quantile level {_fmt(value)} is outside [0, 1]{hint}")
+
+
+def list_column(values, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A ``DOUBLE[]`` column: flat values, offsets and the NULL-row mask.
+
+    NULL elements inside a list are an error for the caller to raise; here
+    they come back as NaN.
+    """
+    arr = _array(values)
+    if len(arr) != n:
+        raise AssertionError("list column length mismatch")
+    offsets = np.asarray(arr.offsets, dtype=np.int64)
+    flat = arr.values.slice(offsets[0], offsets[-1] - offsets[0])
+    flat_values, _ = _floats(flat)
+    return flat_values, offsets - offsets[0], np.asarray(arr.is_null(), dtype=bool)
+
+
+def per_group_list(fn: str, groups: Groups, name: str, what: str):
+    """One list per group from a per-row list field (cuts, qs).
+
+    The first non-NULL row's list is the group's; a group whose rows disagree
+    is an error. Returns flat values, offsets, and a mask of groups without one.
+    """
+    values, offsets, nulls = list_column(groups.field(name), groups.offsets[-1])
+    first = _first_live_row(nulls, groups.offsets)
+    missing = first < 0
+    lengths = np.diff(offsets)
+    row_group = np.repeat(np.arange(len(groups)), np.diff(groups.offsets))
+    ref = first[row_group]
+    live = ~nulls
+    if live.any() and not _rows_agree(values, offsets, lengths, live, ref):
+        raise ParameterError(
+            f"{fn}: {what} differ between rows of one group; give one set of {what} per group")
+    pick = np.where(missing, 0, first)
+    out_len = np.where(missing, 0, lengths[pick] if len(lengths) else 0)
+    out_offsets = np.concatenate([[0], np.cumsum(out_len)]).astype(np.int64)
+    idx = _ranges(offsets[pick], out_len)
+    return values[idx], out_offsets, missing
+
+
+def _first_live_row(nulls: np.ndarray, offsets: np.ndarray) -> np.ndarray:
+    """Index of each group's first non-NULL row, -1 where there is none."""
+    n_rows = len(nulls)
+    rows = np.where(nulls, n_rows, np.arange(n_rows))
+    first = np.full(len(offsets) - 1, n_rows, dtype=np.int64)
+    nonempty = np.diff(offsets) > 0
+    if n_rows:
+        first[nonempty] = np.minimum.reduceat(rows, offsets[:-1][nonempty])
+    return np.where(first >= n_rows, -1, first)
+
+
+def _ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
+    """Concatenation of ``arange(s, s + c)`` for every pair, vectorised."""
+    total = int(counts.sum())
+    if total == 0:
+        return np.zeros(0, dtype=np.int64)
+    ends = np.cumsum(counts)
+    idx = np.arange(total, dtype=np.int64) - np.repeat(ends - counts, counts)
+    return idx + np.repeat(starts, counts)
+
+
+def _rows_agree(values, offsets, lengths, live, ref) -> bool:
+    rows = np.flatnonzero(live)
+    if (lengths[rows] != lengths[ref[rows]]).any():
+        return False
+    counts = lengths[rows]
+    own = values[_ranges(offsets[rows], counts)]
+    theirs = values[_ranges(offsets[ref[rows]], counts)]
+    return bool((own == theirs).all())
+
+
+def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
+    """One value per group from a per-row scalar field (target)."""
+    values, nulls = _floats(groups.field(name))
+    first = _first_live_row(nulls, groups.offsets)
+    missing = first < 0
+    out = np.where(missing, np.nan, values[np.where(missing, 0, first)] if len(values) else np.nan)
+    row_group = np.repeat(np.arange(len(groups)), np.diff(groups.offsets))
+    live = np.flatnonzero(~nulls)
+    ref = out[row_group[live]]
+    differ = (values[live] != ref) & ~(np.isnan(values[live]) & np.isnan(ref))
+    if differ.any():
+        i = live[np.flatnonzero(differ)[0]]
+        raise ParameterError(
+            f"{fn}: {what} differs between rows of one group ({_fmt(out[row_group[i]])} and "
+            f"{_fmt(values[i])}); give one {what} per group")
+    bad = ~missing & ~np.isfinite(out)
+    if bad.any():
+        raise ParameterError(f"{fn}: {what} {_fmt(out[np.flatnonzero(bad)[0]])} is not a finite total")
+    return out, missing
+
+
+# -- outcomes ---------------------------------------------------------------
+
+def read_outcomes(fn: str, values) -> OutcomeBatch:
+    """A column of outcome structs, checked; NULL rows come back invalid."""
+    arr = _array(values)
+    valid = ~np.asarray(arr.is_null(), dtype=bool)
+    cols = {}
+    for name in ("origin", "step", "rounding", "trials"):
+        col = arr.field(name)
+        vals, nulls = _floats(col)
+        if (nulls & valid).any():
+            raise InputDataError(
+                f"{fn}: an outcome has a NULL {name!r}; pass outcomes built by outcome_dist")
+        cols[name] = vals
+    mass_col = arr.field("mass")
+    mass_nulls = np.asarray(mass_col.is_null(), dtype=bool)
+    if (mass_nulls & valid).any():
+        raise InputDataError(f"{fn}: an outcome has a NULL 'mass'; pass outcomes built by outcome_dist")
+    mass, offsets, _ = list_column(mass_col, len(arr))
+    batch = OutcomeBatch(cols["origin"], cols["step"], mass, offsets,
+                         cols["trials"].astype(np.int64), cols["rounding"], valid)
+    check_outcomes(fn, batch)
+    return batch
+
+
+def check_outcomes(fn: str, b: OutcomeBatch) -> None:
+    v = b.valid
+    lengths = np.diff(b.offsets)
+    problems = [
+        (~np.isfinite(b.origin) & v, "origin {} is not finite"),
+        ((~np.isfinite(b.step) | (b.step < 0)) & v, "step {} is not a finite value >= 0"),
+        ((b.step == 0) & (lengths > 1) & v, "step {} with more than one mass point"),
+        ((lengths == 0) & v, "mass is empty (length {})"),
+        ((~np.isfinite(b.rounding) | (b.rounding < 0)) & v, "rounding {} is not >= 0"),
+        ((b.trials < 0) & v, "trials {} is negative"),
+    ]
+    fields = [b.origin, b.step, b.step, lengths, b.rounding, b.trials]
+    for (bad, text), field in zip(problems, fields):
+        if bad.any():
+            value = field[np.flatnonzero(bad)[0]]
+            raise InputDataError(f"{fn}: malformed outcome: {text.format(value)}; "
+                                 "pass outcomes built by outcome_dist")
+    if len(b.mass) and not (b.mass >= 0).all():
+        raise InputDataError(f"{fn}: malformed outcome: mass contains "
+                             f"{_fmt(b.mass[~(b.mass >= 0)][0])}; masses must be >= 0")
+    running = np.concatenate([[0.0], np.cumsum(b.mass)])
+    sums = np.where(lengths > 0, running[b.offsets[1:]] - running[b.offsets[:-1]], 1.0)
+    bad = v & (np.abs(sums - 1.0) > MASS_TOL)
+    if bad.any():
+        raise InputDataError(f"{fn}: malformed outcome: mass sums to "
+                             f"{_fmt(sums[np.flatnonzero(bad)[0]])}, not 1")
+
+
+def outcomes_to_arrow(b: OutcomeBatch) -> pa.StructArray:
+    mass = pa.ListArray.from_arrays(pa.array(b.offsets.astype(np.int32)), pa.array(b.mass))
+    arrays = [pa.array(b.origin), pa.array(b.step), mass,
+              pa.array(np.asarray(b.trials, dtype=np.int64)), pa.array(b.rounding)]
+    return pa.StructArray.from_arrays(arrays, names=list(OUTCOME_FIELDS),
+                                      mask=pa.array(~np.asarray(b.valid, dtype=bool)))
+
+
+def lists_to_arrow(values: np.ndarray, offsets: np.ndarray, valid: np.ndarray) -> pa.ListArray:
+    return pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), pa.array(values),
+                                    mask=pa.array(~np.asarray(valid, dtype=bool)))
+
+
+def doubles_to_arrow(values: np.ndarray, valid: np.ndarray) -> pa.Array:
+    return pa.array(values, mask=~np.asarray(valid, dtype=bool))

@@ -1,0 +1,272 @@
+"""The bodies of the SQL functions: Arrow in, kernel call, Arrow out.
+
+Every function here is registered by ``registry.register`` as a vectorised
+(``type='arrow'``) DuckDB UDF. The aggregates arrive through SQL macros that
+pack a group's rows into one ``LIST(STRUCT(...))`` (a single aggregate, so the
+macros also work as window functions), which makes one UDF call cover up to
+2,048 groups and one kernel call.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyarrow as pa
+
+from . import arrowio as io
+from .errors import InputDataError, ParameterError
+from .kernels import readout
+from .kernels.combine import Outcome, combine
+from .kernels.lattice import MAX_BINS
+from .kernels.outcome import TOO_MANY_BINS, OutcomeBatch, exact_outcomes
+
+#: Most bins ``outcome_histogram`` will draw.
+MAX_HISTOGRAM_BINS = 10_000
+
+
+# -- helpers ----------------------------------------------------------------
+
+def _subset(b: OutcomeBatch, keep: np.ndarray) -> OutcomeBatch:
+    lengths = np.diff(b.offsets)[keep]
+    idx = io._ranges(b.offsets[:-1][keep], lengths)
+    offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+    return OutcomeBatch(b.origin[keep], b.step[keep], b.mass[idx], offsets,
+                        b.trials[keep], b.rounding[keep], b.valid[keep])
+
+
+def _ragged_subset(values, offsets, keep):
+    lengths = np.diff(offsets)[keep]
+    idx = io._ranges(offsets[:-1][keep], lengths)
+    return values[idx], np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+
+
+def _scatter_lists(values, offsets, keep, per_row) -> pa.ListArray:
+    """Lists for the rows in ``keep`` (the others NULL) as one Arrow column."""
+    lengths = np.zeros(len(keep), dtype=np.int64)
+    lengths[keep] = np.diff(offsets) if per_row is None else per_row
+    full = np.concatenate([[0], np.cumsum(lengths)])
+    return io.lists_to_arrow(values, full, keep)
+
+
+def _deal_outcomes(fn: str, groups: io.Groups, step_req=None) -> OutcomeBatch:
+    amount, prob, offsets = io.deals(fn, groups)
+    batch, status = exact_outcomes(amount, prob, offsets, step_req)
+    if (status == TOO_MANY_BINS).any():
+        g = int(np.flatnonzero(status == TOO_MANY_BINS)[0])
+        raise ParameterError(
+            f"{fn}: step {batch.step[g]!r} would need more than {MAX_BINS:,} bins for one "
+            "group; use a larger step or leave step NULL for the automatic lattice")
+    batch.valid &= ~groups.null_group
+    return batch
+
+
+def _bands(b: OutcomeBatch, cuts, cut_offsets, keep) -> pa.ListArray:
+    sub = _subset(b, keep)
+    cut_vals, cut_offs = _ragged_subset(cuts, cut_offsets, keep)
+    out = readout.bands_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
+                              cut_vals, cut_offs)
+    return _scatter_lists(out, None, keep, np.diff(cut_offs) + 1)
+
+
+def _quantiles(b: OutcomeBatch, qs, q_offsets, keep) -> pa.ListArray:
+    sub = _subset(b, keep)
+    q_vals, q_offs = _ragged_subset(qs, q_offsets, keep)
+    out = readout.quantiles_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
+                                  q_vals, q_offs)
+    return _scatter_lists(out, q_offs, keep, None)
+
+
+def _reach(b: OutcomeBatch, target, keep) -> pa.Array:
+    sub = _subset(b, keep)
+    cut_offs = np.arange(len(sub) + 1, dtype=np.int64)
+    out = readout.bands_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
+                              np.ascontiguousarray(target[keep]), cut_offs)
+    result = np.full(len(keep), np.nan)
+    result[keep] = out[1::2]
+    return io.doubles_to_arrow(result, keep)
+
+
+def _cuts_column(fn: str, values, n: int, what: str = "cuts"):
+    flat, offsets, nulls = io.list_column(values, n)
+    if np.isnan(flat).any():
+        raise ParameterError(f"{fn}: {what} contain a NULL; give a list of totals")
+    io.check_cuts(fn, flat, offsets, what)
+    return flat, offsets, nulls
+
+
+def _levels_column(fn: str, values, n: int):
+    flat, offsets, nulls = io.list_column(values, n)
+    io.check_levels(fn, flat)
+    return flat, offsets, nulls
+
+
+# -- aggregates (called through macros) --------------------------------------
+
+def outcome_dist(rows, step):
+    fn = "outcome_dist"
+    groups = io.read_groups(rows)
+    step_req, step_null = io._floats(io._array(step))
+    bad = ~step_null & ~(step_req > 0)
+    if bad.any():
+        raise ParameterError(f"{fn}: step {step_req[bad][0]!r} must be > 0 "
+                             "(or NULL for the automatic lattice)")
+    step_req = np.where(step_null, 0.0, step_req)
+    return io.outcomes_to_arrow(_deal_outcomes(fn, groups, step_req))
+
+
+def band_odds(rows):
+    fn = "band_odds"
+    groups = io.read_groups(rows)
+    cuts, cut_offsets, missing = io.per_group_list(fn, groups, "c", "cuts")
+    if np.isnan(cuts).any():
+        raise ParameterError(f"{fn}: cuts contain a NULL; give a list of totals")
+    io.check_cuts(fn, cuts, cut_offsets)
+    b = _deal_outcomes(fn, groups)
+    return _bands(b, cuts, cut_offsets, b.valid & ~missing)
+
+
+def reach_odds(rows):
+    fn = "reach_odds"
+    groups = io.read_groups(rows)
+    target, missing = io.per_group_scalar(fn, groups, "t", "target")
+    b = _deal_outcomes(fn, groups)
+    return _reach(b, target, b.valid & ~missing)
+
+
+def total_quantiles(rows):
+    fn = "total_quantiles"
+    groups = io.read_groups(rows)
+    qs, q_offsets, missing = io.per_group_list(fn, groups, "q", "quantile levels")
+    io.check_levels(fn, qs)
+    b = _deal_outcomes(fn, groups)
+    return _quantiles(b, qs, q_offsets, b.valid & ~missing)
+
+
+def outcome_merge(outcomes):
+    fn = "outcome_merge"
+    arr = io._array(outcomes)
+    offsets = np.asarray(arr.offsets, dtype=np.int64)
+    inner = io.read_outcomes(fn, arr.values.slice(offsets[0], offsets[-1] - offsets[0]))
+    offsets = offsets - offsets[0]
+    group_null = np.asarray(arr.is_null(), dtype=bool)
+    results = []
+    for g in range(len(offsets) - 1):
+        rows = [i for i in range(offsets[g], offsets[g + 1]) if inner.valid[i]]
+        if group_null[g] or not rows:
+            results.append(None)
+        else:
+            results.append(combine([_one(inner, i) for i in rows]))
+    return io.outcomes_to_arrow(_pack(results))
+
+
+# -- scalars on outcomes ------------------------------------------------------
+
+def outcome_bands(o, cuts):
+    fn = "outcome_bands"
+    b = io.read_outcomes(fn, o)
+    flat, offsets, nulls = _cuts_column(fn, cuts, len(b))
+    return _bands(b, flat, offsets, b.valid & ~nulls)
+
+
+def outcome_reach(o, target):
+    fn = "outcome_reach"
+    b = io.read_outcomes(fn, o)
+    values, nulls = io._floats(io._array(target))
+    keep = b.valid & ~nulls
+    if not np.isfinite(values[keep]).all():
+        raise ParameterError(f"{fn}: target {values[keep][~np.isfinite(values[keep])][0]!r} "
+                             "is not a finite total")
+    return _reach(b, values, keep)
+
+
+def outcome_quantiles(o, qs):
+    fn = "outcome_quantiles"
+    b = io.read_outcomes(fn, o)
+    flat, offsets, nulls = _levels_column(fn, qs, len(b))
+    return _quantiles(b, flat, offsets, b.valid & ~nulls)
+
+
+def _moments(o, fn):
+    b = io.read_outcomes(fn, o)
+    sub = _subset(b, b.valid)
+    mean, sd = readout.moments_batch(sub.origin, sub.step, sub.mass, sub.offsets)
+    return b.valid, mean, sd
+
+
+def outcome_mean(o):
+    keep, mean, _ = _moments(o, "outcome_mean")
+    out = np.full(len(keep), np.nan)
+    out[keep] = mean
+    return io.doubles_to_arrow(out, keep)
+
+
+def outcome_sd(o):
+    keep, _, sd = _moments(o, "outcome_sd")
+    out = np.full(len(keep), np.nan)
+    out[keep] = sd
+    return io.doubles_to_arrow(out, keep)
+
+
+def outcome_shift(o, amount):
+    fn = "outcome_shift"
+    b = io.read_outcomes(fn, o)
+    values, nulls = io._floats(io._array(amount))
+    keep = b.valid & ~nulls
+    if not np.isfinite(values[keep]).all():
+        raise InputDataError(f"{fn}: amount {values[keep][~np.isfinite(values[keep])][0]!r} "
+                             "is not a finite number")
+    b.origin = np.where(keep, b.origin + np.where(keep, values, 0.0), b.origin)
+    b.valid = keep
+    return io.outcomes_to_arrow(b)
+
+
+def outcome_add(o1, o2):
+    fn = "outcome_add"
+    a = io.read_outcomes(fn, o1)
+    b = io.read_outcomes(fn, o2)
+    results = [combine([_one(a, g), _one(b, g)]) if a.valid[g] and b.valid[g] else None
+               for g in range(len(a))]
+    return io.outcomes_to_arrow(_pack(results))
+
+
+def outcome_histogram(o, bins):
+    fn = "outcome_histogram"
+    b = io.read_outcomes(fn, o)
+    counts, nulls = io._floats(io._array(bins))
+    keep = b.valid & ~nulls
+    bad = keep & ~((counts >= 1) & (counts <= MAX_HISTOGRAM_BINS))
+    if bad.any():
+        raise ParameterError(f"{fn}: bins {counts[bad][0]!r} is outside "
+                             f"[1, {MAX_HISTOGRAM_BINS:,}]; ask for 20 to 100 bins for a chart")
+    sub = _subset(b, keep)
+    lo, hi, prob, offs = readout.histogram_batch(
+        sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
+        counts[keep].astype(np.int64))
+    lengths = np.zeros(len(keep), dtype=np.int64)
+    lengths[keep] = np.diff(offs)
+    full = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int32)
+    items = pa.StructArray.from_arrays([pa.array(lo), pa.array(hi), pa.array(prob)],
+                                       names=["lo", "hi", "prob"])
+    return pa.ListArray.from_arrays(pa.array(full), items, mask=pa.array(~keep))
+
+
+# -- one outcome <-> batch ------------------------------------------------------
+
+def _one(b: OutcomeBatch, g: int) -> Outcome:
+    return Outcome(float(b.origin[g]), float(b.step[g]), b.row(g),
+                   int(b.trials[g]), float(b.rounding[g]))
+
+
+def _pack(results: list[Outcome | None]) -> OutcomeBatch:
+    n = len(results)
+    lengths = np.array([len(r.mass) if r else 0 for r in results], dtype=np.int64)
+    mass = np.concatenate([r.mass for r in results if r] or [np.zeros(0)])
+
+    def col(attr, dtype=float):
+        return np.array([getattr(r, attr) if r else 0 for r in results], dtype=dtype)
+
+    return OutcomeBatch(col("origin"), col("step"), mass,
+                        np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64),
+                        col("trials", np.int64), col("rounding"),
+                        np.array([r is not None for r in results], dtype=bool)) if n else \
+        OutcomeBatch(*(np.zeros(0) for _ in range(3)), np.zeros(1, np.int64),
+                     np.zeros(0, np.int64), np.zeros(0), np.zeros(0, bool))

@@ -1,0 +1,208 @@
+"""The lattice recursion, batched over many groups in one compiled call.
+
+Adding deal ``j`` (lattice offset ``k``, split fraction ``f``, probability
+``p``) to a distribution ``g`` on integer totals gives
+
+    g'(s) = (1 - p) g(s) + p (1 - f) g(s - k) + p f g(s - k - 1)
+
+(the two-point recursion of the weighted Poisson-binomial distribution, with
+the amount split between two neighbouring lattice points when it is not a
+multiple of the step). Each update is done in place over the current support,
+descending for ``k >= 0`` and ascending for ``k < 0`` so that every read sees
+the previous distribution. Cost: one pass over the current support per deal;
+deals are added in ascending amount so the support stays narrow for long.
+
+When the window had to cut the support (``linear`` False in the plan), the
+deals are added in *chunks* whose own supports stay narrow, each chunk is
+folded modulo the window size, and ``spectral.py`` multiplies the chunks'
+discrete Fourier transforms (Biscarri, Zhao & Brunner, "A simple and fast
+method for computing the Poisson binomial distribution function", CSDA 122,
+2018, use the same product-of-transforms idea for counts).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from .lattice import EMPTY, OK, canonical_order, plan_group
+
+
+@njit(cache=True, nogil=True)
+def add_deals(buf, cur_lo, cur_hi, offset, frac, prob, start, stop):
+    """Add deals ``start..stop-1`` to the distribution in ``buf[cur_lo..cur_hi]``.
+
+    ``buf`` must be zero outside the current support and large enough for the
+    final support. Returns the new ``(cur_lo, cur_hi)``.
+    """
+    for i in range(start, stop):
+        k = offset[i]
+        f = frac[i]
+        p = prob[i]
+        q0 = 1.0 - p
+        q1 = p * (1.0 - f)
+        q2 = p * f
+        up = 1 if f > 0.0 else 0
+        new_lo = cur_lo + min(0, k)
+        new_hi = cur_hi + max(0, k + up)
+        if k >= 0:
+            for s in range(new_hi, new_lo - 1, -1):
+                acc = q0 * buf[s] if s <= cur_hi else 0.0
+                j = s - k
+                if cur_lo <= j <= cur_hi:
+                    acc += q1 * buf[j]
+                j -= 1
+                if up and cur_lo <= j <= cur_hi:
+                    acc += q2 * buf[j]
+                buf[s] = acc
+        else:
+            for s in range(new_lo, new_hi + 1):
+                acc = q0 * buf[s] if s >= cur_lo else 0.0
+                j = s - k
+                if cur_lo <= j <= cur_hi:
+                    acc += q1 * buf[j]
+                j -= 1
+                if up and cur_lo <= j <= cur_hi:
+                    acc += q2 * buf[j]
+                buf[s] = acc
+        cur_lo = new_lo
+        cur_hi = new_hi
+    return cur_lo, cur_hi
+
+
+@njit(cache=True, nogil=True)
+def _span(k, f):
+    return max(0, k + (1 if f > 0.0 else 0)) - min(0, k)
+
+
+@njit(cache=True, nogil=True)
+def fill_chunks(offset, frac, prob, start, size, width, rows):
+    """Fold chunks of deals, from deal ``start`` on, into the rows of ``rows``.
+
+    Each row gets one chunk: consecutive deals whose summed spans stay within
+    ``width`` (a wider single deal is placed as its three atoms), computed by
+    ``add_deals`` and folded modulo ``size`` (absolute index ``s`` at position
+    ``s mod size``). Returns ``(next_deal, rows_used)``.
+    """
+    n = len(offset)
+    used = 0
+    i = start
+    while i < n and used < rows.shape[0]:
+        row = rows[used]
+        span = _span(offset[i], frac[i])
+        if span > width:
+            k = offset[i]
+            p = prob[i]
+            row[0] += 1.0 - p
+            row[k % size] += p * (1.0 - frac[i])
+            if frac[i] > 0.0:
+                row[(k + 1) % size] += p * frac[i]
+            i += 1
+            used += 1
+            continue
+        stop = i
+        total = 0
+        base = 0
+        while stop < n:
+            s = _span(offset[stop], frac[stop])
+            if stop > i and total + s > width:
+                break
+            total += s
+            base += min(0, offset[stop])
+            stop += 1
+        buf = np.zeros(total + 1)
+        buf[-base] = 1.0
+        add_deals(buf, -base, -base, offset, frac, prob, i, stop)
+        for j in range(total + 1):
+            row[(base + j) % size] += buf[j]
+        i = stop
+        used += 1
+    return i, used
+
+
+@njit(cache=True, nogil=True)
+def exact_batch(amount, prob, offsets, step_req, bins):
+    """Plan every group of a batch and compute those whose support fits.
+
+    ``amount``/``prob`` hold the usable rows of all groups back to back
+    (``offsets`` delimits them); ``step_req[g] > 0`` asks for that step.
+    Returns per-group arrays ``status, origin, step, exact, rounding, linear,
+    lo, mass_offsets`` and the flat ``mass`` (linear groups filled, the others
+    left for ``spectral.fold_group``), plus per-deal arrays in canonical order
+    ``act_offset, act_frac, act_prob`` and their ranges ``act_start, act_stop``.
+    """
+    n_groups = len(offsets) - 1
+    status = np.zeros(n_groups, np.int64)
+    origin = np.zeros(n_groups)
+    step = np.zeros(n_groups)
+    exact = np.zeros(n_groups, np.bool_)
+    rounding = np.zeros(n_groups)
+    linear = np.zeros(n_groups, np.bool_)
+    lo = np.zeros(n_groups, np.int64)
+    size = np.zeros(n_groups, np.int64)
+    n_rows = len(amount)
+    act_amount = np.empty(n_rows)
+    act_prob = np.empty(n_rows)
+    act_offset = np.zeros(n_rows, np.int64)
+    act_frac = np.zeros(n_rows)
+    act_start = offsets[:-1].copy()
+    act_stop = offsets[:-1].copy()
+
+    for g in range(n_groups):
+        a0 = offsets[g]
+        a1 = offsets[g + 1]
+        if a1 == a0:
+            status[g] = EMPTY
+            continue
+        order = canonical_order(amount[a0:a1], prob[a0:a1])
+        shift = 0.0
+        m = a0
+        for r in order:
+            a = amount[a0 + r]
+            p = prob[a0 + r]
+            if p >= 1.0:
+                shift += a
+            elif p > 0.0 and a != 0.0:
+                act_amount[m] = a
+                act_prob[m] = p
+                m += 1
+        act_stop[g] = m
+        if m == a0:
+            origin[g] = shift
+            step[g] = max(step_req[g], 0.0)
+            exact[g] = True
+            linear[g] = True
+            size[g] = 1
+            continue
+        st, h, ex, first, count, lin, rnd = plan_group(
+            act_amount[a0:m], act_prob[a0:m], step_req[g], bins,
+            act_offset[a0:m], act_frac[a0:m],
+        )
+        status[g] = st
+        step[g] = h
+        exact[g] = ex
+        rounding[g] = rnd
+        linear[g] = lin
+        lo[g] = first
+        size[g] = count if st == OK else 0
+        origin[g] = shift + first * h
+
+    mass_offsets = np.zeros(n_groups + 1, np.int64)
+    for g in range(n_groups):
+        mass_offsets[g + 1] = mass_offsets[g] + size[g]
+    mass = np.zeros(mass_offsets[-1])
+    for g in range(n_groups):
+        if status[g] != OK or not linear[g]:
+            continue
+        out = mass[mass_offsets[g]:mass_offsets[g + 1]]
+        if size[g] == 1:
+            out[0] = 1.0
+            continue
+        at = -lo[g]
+        out[at] = 1.0
+        add_deals(out, at, at, act_offset, act_frac, act_prob, act_start[g], act_stop[g])
+        total = out.sum()
+        for j in range(len(out)):
+            out[j] = max(out[j], 0.0) / total
+    return (status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
+            act_offset, act_frac, act_prob, act_start, act_stop)

@@ -1,0 +1,90 @@
+"""Registering sqlrisk's functions and macros on a DuckDB connection.
+
+Scalars are Python UDFs under their public names. Aggregates are TEMP macros
+over one ``list()`` of structs feeding a UDF named ``_sqlrisk_*`` (DuckDB has
+no Python aggregate API; one aggregate per macro keeps them usable as window
+functions). TEMP macros live with the connection, so nothing is written into
+a user's database file.
+"""
+
+from __future__ import annotations
+
+import duckdb
+
+from . import functions as f
+
+OUTCOME_SQL = "STRUCT(origin DOUBLE, step DOUBLE, mass DOUBLE[], trials BIGINT, rounding DOUBLE)"
+_DEALS = "STRUCT(a DOUBLE, p DOUBLE{extra})[]"
+
+
+def _t(sql: str):
+    return duckdb.sqltype(sql)
+
+
+# name -> (python function, parameter types, return type)
+UDFS = {
+    "_sqlrisk_outcome_dist": (f.outcome_dist, [_DEALS.format(extra=""), "DOUBLE"], OUTCOME_SQL),
+    "_sqlrisk_band_odds": (f.band_odds, [_DEALS.format(extra=", c DOUBLE[]")], "DOUBLE[]"),
+    "_sqlrisk_reach_odds": (f.reach_odds, [_DEALS.format(extra=", t DOUBLE")], "DOUBLE"),
+    "_sqlrisk_total_quantiles": (f.total_quantiles, [_DEALS.format(extra=", q DOUBLE[]")],
+                                 "DOUBLE[]"),
+    "_sqlrisk_outcome_merge": (f.outcome_merge, [f"{OUTCOME_SQL}[]"], OUTCOME_SQL),
+    "outcome_bands": (f.outcome_bands, [OUTCOME_SQL, "DOUBLE[]"], "DOUBLE[]"),
+    "outcome_reach": (f.outcome_reach, [OUTCOME_SQL, "DOUBLE"], "DOUBLE"),
+    "outcome_quantiles": (f.outcome_quantiles, [OUTCOME_SQL, "DOUBLE[]"], "DOUBLE[]"),
+    "outcome_mean": (f.outcome_mean, [OUTCOME_SQL], "DOUBLE"),
+    "outcome_sd": (f.outcome_sd, [OUTCOME_SQL], "DOUBLE"),
+    "outcome_shift": (f.outcome_shift, [OUTCOME_SQL, "DOUBLE"], OUTCOME_SQL),
+    "outcome_add": (f.outcome_add, [OUTCOME_SQL, OUTCOME_SQL], OUTCOME_SQL),
+    "outcome_histogram": (f.outcome_histogram, [OUTCOME_SQL, "BIGINT"],
+                          "STRUCT(lo DOUBLE, hi DOUBLE, prob DOUBLE)[]"),
+}
+
+
+MACROS = {
+    "outcome_dist": ("amount, prob, step := NULL",
+                     "_sqlrisk_outcome_dist(list({'a': amount::DOUBLE, 'p': prob::DOUBLE}), "
+                     "step::DOUBLE)"),
+    "band_odds": ("amount, prob, cuts",
+                  "_sqlrisk_band_odds(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
+                  "'c': cuts::DOUBLE[]}))"),
+    "reach_odds": ("amount, prob, target",
+                   "_sqlrisk_reach_odds(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
+                   "'t': target::DOUBLE}))"),
+    "total_quantiles": ("amount, prob, qs",
+                        "_sqlrisk_total_quantiles(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
+                        "'q': qs::DOUBLE[]}))"),
+    "outcome_merge": ("o", f"_sqlrisk_outcome_merge(list(o::{OUTCOME_SQL}))"),
+}
+
+
+def _exists(con: duckdb.DuckDBPyConnection, name: str) -> bool:
+    rows = con.execute(
+        "SELECT count(*) FROM duckdb_functions() WHERE function_name = ?", [name]).fetchall()
+    return rows[0][0] > 0
+
+
+def register(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
+    """Register every sqlrisk function and macro on ``con``; returns ``con``.
+
+    Safe to call again: each function is removed and created anew, so a second
+    call replaces (never silently keeps) what an earlier version registered.
+    """
+    for name, (func, params, result) in UDFS.items():
+        if _exists(con, name):
+            try:
+                con.remove_function(name)
+            except duckdb.InvalidInputException:
+                pass  # a macro or built-in of that name, not ours: let create fail loudly
+        con.create_function(name, func, [_t(p) for p in params], _t(result),
+                            type="arrow", null_handling="special")
+    for name, (params, body) in MACROS.items():
+        con.execute(f"CREATE OR REPLACE TEMP MACRO {name}({params}) AS {body}")
+    return con
+
+
+def connect(path: str | None = None, *, read_only: bool = False,
+            config: dict | None = None) -> duckdb.DuckDBPyConnection:
+    """Open a DuckDB connection (in memory when ``path`` is None) with sqlrisk registered."""
+    con = duckdb.connect(path or ":memory:", read_only=read_only, config=config or {})
+    return register(con)
