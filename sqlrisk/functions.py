@@ -53,7 +53,7 @@ def _deal_outcomes(fn: str, groups: io.Groups, step_req=None) -> OutcomeBatch:
     if (status == TOO_MANY_BINS).any():
         g = int(np.flatnonzero(status == TOO_MANY_BINS)[0])
         raise ParameterError(
-            f"{fn}: step {batch.step[g]!r} would need more than {MAX_BINS:,} bins for one "
+            f"{fn}: step {io._fmt(batch.step[g])} would need more than {MAX_BINS:,} bins for one "
             "group; use a larger step or leave step NULL for the automatic lattice")
     batch.valid &= ~groups.null_group
     return batch
@@ -107,7 +107,7 @@ def outcome_dist(rows, step):
     step_req, step_null = io._floats(io._array(step))
     bad = ~step_null & ~(step_req > 0)
     if bad.any():
-        raise ParameterError(f"{fn}: step {step_req[bad][0]!r} must be > 0 "
+        raise ParameterError(f"{fn}: step {io._fmt(step_req[bad][0])} must be > 0 "
                              "(or NULL for the automatic lattice)")
     step_req = np.where(step_null, 0.0, step_req)
     return io.outcomes_to_arrow(_deal_outcomes(fn, groups, step_req))
@@ -173,7 +173,7 @@ def outcome_reach(o, target):
     values, nulls = io._floats(io._array(target))
     keep = b.valid & ~nulls
     if not np.isfinite(values[keep]).all():
-        raise ParameterError(f"{fn}: target {values[keep][~np.isfinite(values[keep])][0]!r} "
+        raise ParameterError(f"{fn}: target {io._fmt(values[keep][~np.isfinite(values[keep])][0])} "
                              "is not a finite total")
     return _reach(b, values, keep)
 
@@ -212,7 +212,7 @@ def outcome_shift(o, amount):
     values, nulls = io._floats(io._array(amount))
     keep = b.valid & ~nulls
     if not np.isfinite(values[keep]).all():
-        raise InputDataError(f"{fn}: amount {values[keep][~np.isfinite(values[keep])][0]!r} "
+        raise InputDataError(f"{fn}: amount {io._fmt(values[keep][~np.isfinite(values[keep])][0])} "
                              "is not a finite number")
     b.origin = np.where(keep, b.origin + np.where(keep, values, 0.0), b.origin)
     b.valid = keep
@@ -235,7 +235,7 @@ def outcome_histogram(o, bins):
     keep = b.valid & ~nulls
     bad = keep & ~((counts >= 1) & (counts <= MAX_HISTOGRAM_BINS))
     if bad.any():
-        raise ParameterError(f"{fn}: bins {counts[bad][0]!r} is outside "
+        raise ParameterError(f"{fn}: bins {io._fmt(counts[bad][0])} is outside "
                              f"[1, {MAX_HISTOGRAM_BINS:,}]; ask for 20 to 100 bins for a chart")
     sub = _subset(b, keep)
     lo, hi, prob, offs = readout.histogram_batch(

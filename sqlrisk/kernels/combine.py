@@ -18,6 +18,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import fftconvolve
 
+from .lattice import common_unit
+
 #: Mass a convolution may drop from each tail (summed over a merge, ~1e-14 at worst).
 TRIM = 1e-18
 #: Bins a merged outcome may hold before the common step is coarsened.
@@ -89,16 +91,20 @@ def _trim_tails(o: Outcome) -> Outcome:
 
 
 def _common_step(steps: list[float], spread: float) -> tuple[float, bool]:
-    """The step all lattices go onto, and whether that is exact (no splitting)."""
+    """The step all lattices go onto, and whether that is exact (no splitting).
+
+    Exact when every step is a whole multiple of one unit (the finest step, or
+    their common unit such as 1 for steps 100 and 7) that keeps the sum within
+    MERGE_MAX_BINS; otherwise the coarsest step, or coarser if the sum needs it.
+    """
     fine = min(steps)
-    coarse = max(steps)
-    if all(_is_multiple(s, fine) for s in steps):
-        step, exact = fine, True
-    else:
-        step, exact = coarse, False
+    unit = fine if all(_is_multiple(s, fine) for s in steps) else common_unit(np.array(steps))[0]
+    if unit > 0 and spread / unit <= MERGE_MAX_BINS:
+        return unit, True
+    step = max(steps)
     if spread / step > MERGE_MAX_BINS:
         return spread / MERGE_MAX_BINS, False
-    return step, exact
+    return step, False
 
 
 def _spread(lattices: list[Outcome]) -> float:
