@@ -47,9 +47,14 @@ def _scatter_lists(values, offsets, keep, per_row) -> pa.ListArray:
     return io.lists_to_arrow(values, full, keep)
 
 
-def _deal_outcomes(fn: str, groups: io.Groups, step_req=None) -> OutcomeBatch:
+def _deal_outcomes(fn: str, groups: io.Groups, step_req=None, correlation=None) -> OutcomeBatch:
     amount, prob, offsets = io.deals(fn, groups)
-    batch, status = exact_outcomes(amount, prob, offsets, step_req)
+    if correlation is None:
+        batch, status = exact_outcomes(amount, prob, offsets, step_req)
+    else:
+        from .simulation import correlated_dist
+        batch, status = correlated_dist(fn, amount, prob, offsets, step_req, correlation,
+                                        len(groups))
     if (status == TOO_MANY_BINS).any():
         g = int(np.flatnonzero(status == TOO_MANY_BINS)[0])
         raise ParameterError(
@@ -101,7 +106,7 @@ def _levels_column(fn: str, values, n: int):
 
 # -- aggregates (called through macros) --------------------------------------
 
-def outcome_dist(rows, step):
+def outcome_dist(rows, step, correlation):
     fn = "outcome_dist"
     groups = io.read_groups(rows)
     step_req, step_null = io._floats(io._array(step))
@@ -110,7 +115,7 @@ def outcome_dist(rows, step):
         raise ParameterError(f"{fn}: step {io._fmt(step_req[bad][0])} must be > 0 "
                              "(or NULL for the automatic lattice)")
     step_req = np.where(step_null, 0.0, step_req)
-    return io.outcomes_to_arrow(_deal_outcomes(fn, groups, step_req))
+    return io.outcomes_to_arrow(_deal_outcomes(fn, groups, step_req, correlation))
 
 
 def band_odds(rows):

@@ -12,6 +12,7 @@ from __future__ import annotations
 import duckdb
 
 from . import functions as f
+from . import simulation as sim
 
 OUTCOME_SQL = "STRUCT(origin DOUBLE, step DOUBLE, mass DOUBLE[], trials BIGINT, rounding DOUBLE)"
 _DEALS = "STRUCT(a DOUBLE, p DOUBLE{extra})[]"
@@ -23,7 +24,13 @@ def _t(sql: str):
 
 # name -> (python function, parameter types, return type)
 UDFS = {
-    "_sqlrisk_outcome_dist": (f.outcome_dist, [_DEALS.format(extra=""), "DOUBLE"], OUTCOME_SQL),
+    "_sqlrisk_outcome_dist": (f.outcome_dist, [_DEALS.format(extra=""), "DOUBLE", "DOUBLE"],
+                              OUTCOME_SQL),
+    "_sqlrisk_outcome_sim": (sim.outcome_sim,
+                             [_DEALS.format(extra=", lo DOUBLE, hi DOUBLE"), "BIGINT", "BIGINT",
+                              "DOUBLE", "DOUBLE"], OUTCOME_SQL),
+    "_sqlrisk_outcome_bands_ci": (sim.outcome_bands_ci, [OUTCOME_SQL, "DOUBLE[]", "DOUBLE"],
+                                  "STRUCT(lo DOUBLE, hi DOUBLE)[]"),
     "_sqlrisk_band_odds": (f.band_odds, [_DEALS.format(extra=", c DOUBLE[]")], "DOUBLE[]"),
     "_sqlrisk_reach_odds": (f.reach_odds, [_DEALS.format(extra=", t DOUBLE")], "DOUBLE"),
     "_sqlrisk_total_quantiles": (f.total_quantiles, [_DEALS.format(extra=", q DOUBLE[]")],
@@ -42,9 +49,16 @@ UDFS = {
 
 
 MACROS = {
-    "outcome_dist": ("amount, prob, step := NULL",
+    "outcome_dist": ("amount, prob, step := NULL, correlation := 0.0",
                      "_sqlrisk_outcome_dist(list({'a': amount::DOUBLE, 'p': prob::DOUBLE}), "
-                     "step::DOUBLE)"),
+                     "step::DOUBLE, correlation::DOUBLE)"),
+    "outcome_sim": ("amount, prob, trials := 100000, seed := 0, correlation := 0.0, "
+                    "low := NULL, high := NULL, step := NULL",
+                    "_sqlrisk_outcome_sim(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
+                    "'lo': low::DOUBLE, 'hi': high::DOUBLE}), trials::BIGINT, seed::BIGINT, "
+                    "correlation::DOUBLE, step::DOUBLE)"),
+    "outcome_bands_ci": ("o, cuts, level := 0.95",
+                         "_sqlrisk_outcome_bands_ci(o, cuts::DOUBLE[], level::DOUBLE)"),
     "band_odds": ("amount, prob, cuts",
                   "_sqlrisk_band_odds(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
                   "'c': cuts::DOUBLE[]}))"),

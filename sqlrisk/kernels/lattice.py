@@ -219,14 +219,16 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
     rounding = 0.0 if exact else step * (max(sum_f, sum_g) + 0.5)
 
     full = k_hi - k_lo + 1
-    # The split can add one index per deal beyond width / step.
-    limit = MAX_BINS if step_req > 0 else max(bins, 16, math.ceil(width / step) + 8) + n
-    if full <= limit:
-        return OK, step, exact, k_lo, full, True, rounding
     l_lo, l_hi = _window(mean, max(lat_var, 0.0), lat_largest, k_lo * step, k_hi * step)
     lo = np.int64(math.floor(l_lo / step)) - 1
     hi = np.int64(math.ceil(l_hi / step)) + 1
     size = hi - lo + 1
+    # Cover every reachable total unless that is much wider than the window
+    # (the split can add one index per deal beyond the window's width).
+    if full <= 2 * size + n:
+        if full > MAX_BINS:
+            return TOO_MANY_BINS, step, exact, k_lo, full, True, rounding
+        return OK, step, exact, k_lo, full, True, rounding
     if size > MAX_BINS:
         return TOO_MANY_BINS, step, exact, lo, size, False, rounding
     return OK, step, exact, lo, size, False, rounding

@@ -16,7 +16,7 @@ from .lattice import DEFAULT_BINS, EMPTY, OK, TOO_MANY_BINS
 from .recursion import exact_batch
 from .spectral import fold_group
 
-__all__ = ["OutcomeBatch", "exact_outcomes", "EMPTY", "OK", "TOO_MANY_BINS"]
+__all__ = ["OutcomeBatch", "concat", "exact_outcomes", "EMPTY", "OK", "TOO_MANY_BINS"]
 
 
 @dataclass
@@ -42,8 +42,25 @@ class OutcomeBatch:
 
     @property
     def smooth(self) -> np.ndarray:
-        """Rows read as bins rather than points (see ``readout``)."""
-        return (self.rounding > 0) | (self.trials > 0)
+        """Rows read as bins rather than points: those whose lattice is not exact
+        (see ``readout``). A simulated outcome on an exact lattice is read as points."""
+        return self.rounding > 0
+
+
+def concat(parts: list["OutcomeBatch"]) -> "OutcomeBatch":
+    """Rows of several batches, in order, as one batch."""
+    if len(parts) == 1:
+        return parts[0]
+    lengths = np.concatenate([np.diff(b.offsets) for b in parts])
+    return OutcomeBatch(
+        np.concatenate([b.origin for b in parts]),
+        np.concatenate([b.step for b in parts]),
+        np.concatenate([b.mass for b in parts]),
+        np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64),
+        np.concatenate([b.trials for b in parts]),
+        np.concatenate([b.rounding for b in parts]),
+        np.concatenate([b.valid for b in parts]),
+    )
 
 
 def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BINS):
