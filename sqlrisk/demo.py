@@ -6,7 +6,7 @@ from pathlib import Path
 
 import duckdb
 
-from . import queries, render
+from . import charting, queries, render, runner
 
 SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals")
 BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more")
@@ -38,9 +38,23 @@ def _section(con, name: str, title: str, columns: list[str] | None = None) -> st
     return f"{title}\n(from {source}: {query.description})\n\n" + render.table(headers, rows, formats)
 
 
-def run_demo(con: duckdb.DuckDBPyConnection) -> str:
-    """Load the seeds into ``con`` and return the demo's printed report."""
+CHART_REGION = "Tidewater Bay"
+
+
+def write_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
+    """Chart of one region's outcome with its summed quota bands (sql/region_outcomes.sql)."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    query = queries.find("region_outcomes")
+    result = runner.run_query(con, query, {})
+    path = out_dir / "demo-region-chart.svg"
+    return charting.draw_rows(con, result.table, path,
+                              where=f"region = '{CHART_REGION}'")[0]
+
+
+def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str:
+    """Load the seeds into ``con``, write the demo chart into ``out_dir``, return the report."""
     load_seeds(con)
+    chart_path = write_chart(con, out_dir or Path("out"))
     counts = con.execute(
         "SELECT count(*), count(DISTINCT owner_id), count(DISTINCT region) FROM pipeline").fetchall()[0]
     parts = [
@@ -53,6 +67,9 @@ def run_demo(con: duckdb.DuckDBPyConnection) -> str:
                   "floor_to_target", "target_to_stretch", "stretch_or_more", "rounding"]),
         "",
         _section(con, "region_rollup", "Region and company roll-up of the owner outcomes"),
+        "",
+        f"Chart of {CHART_REGION}'s won total with its quota bands: {chart_path}",
+        "(from sql/region_outcomes.sql, drawn by 'sqlrisk chart region_outcomes')",
         "",
         "How to read this: expected_value is the weighted sum SUM(amount * win_prob); the band",
         "columns are exact probabilities of the won total under the stated win probabilities with",

@@ -82,14 +82,18 @@ def register(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
     """Register every sqlrisk function and macro on ``con``; returns ``con``.
 
     Safe to call again: each function is removed and created anew, so a second
-    call replaces (never silently keeps) what an earlier version registered.
+    call replaces what an earlier call on this connection registered. DuckDB
+    keeps Python functions in the database instance, which all connections to
+    one file in a process share; a function another such connection registered
+    cannot be removed from here, and is kept (it is this same module's function,
+    so it is never stale).
     """
     for name, (func, params, result) in UDFS.items():
         if _exists(con, name):
             try:
                 con.remove_function(name)
             except duckdb.InvalidInputException:
-                pass  # a macro or built-in of that name, not ours: let create fail loudly
+                continue  # registered by another connection to the same database
         con.create_function(name, func, [_t(p) for p in params], _t(result),
                             type="arrow", null_handling="special")
     for name, (params, body) in MACROS.items():

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import decimal
 import math
 from collections.abc import Callable, Sequence
 
@@ -25,6 +26,8 @@ def pct(x) -> str:
 def plain(x) -> str:
     if x is None:
         return ""
+    if isinstance(x, decimal.Decimal):
+        x = int(x) if x == x.to_integral_value() else float(x)
     if isinstance(x, float):
         if not math.isfinite(x):
             return str(x)
@@ -53,7 +56,8 @@ def table(headers: Sequence[str], rows: Sequence[Sequence],
                 text = text[: max_width - 3] + "..."
             line.append(text)
         cells.append(line)
-    numeric = [all(isinstance(r[i], (int, float)) or r[i] is None for r in rows) if rows else False
+    numeric = [all(isinstance(r[i], (int, float, decimal.Decimal)) or r[i] is None for r in rows)
+               if rows else False
                for i in range(len(headers))]
     widths = [max([len(h)] + [len(c[i]) for c in cells]) for i, h in enumerate(headers)]
 
