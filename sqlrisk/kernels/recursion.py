@@ -34,6 +34,11 @@ def add_deals(buf, cur_lo, cur_hi, offset, frac, prob, start, stop):
 
     ``buf`` must be zero outside the current support and large enough for the
     final support. Returns the new ``(cur_lo, cur_hi)``.
+
+    The update is in place: descending for ``k >= 0`` and ascending for
+    ``k < 0``, so every read sees the previous distribution. The main loop
+    covers the totals where all three terms are inside the old support (or in
+    the zeros beyond it) and has no branches; the few edge totals follow.
     """
     for i in range(start, stop):
         k = offset[i]
@@ -43,30 +48,31 @@ def add_deals(buf, cur_lo, cur_hi, offset, frac, prob, start, stop):
         q1 = p * (1.0 - f)
         q2 = p * f
         up = 1 if f > 0.0 else 0
-        new_lo = cur_lo + min(0, k)
-        new_hi = cur_hi + max(0, k + up)
         if k >= 0:
-            for s in range(new_hi, new_lo - 1, -1):
-                acc = q0 * buf[s] if s <= cur_hi else 0.0
-                j = s - k
-                if cur_lo <= j <= cur_hi:
-                    acc += q1 * buf[j]
-                j -= 1
-                if up and cur_lo <= j <= cur_hi:
-                    acc += q2 * buf[j]
-                buf[s] = acc
+            new_hi = cur_hi + k + up
+            edge = cur_lo + k + up  # lowest total whose reads all start at cur_lo or above
+            if up:
+                for s in range(new_hi, edge - 1, -1):
+                    buf[s] = q0 * buf[s] + q1 * buf[s - k] + q2 * buf[s - k - 1]
+                s = cur_lo + k
+                buf[s] = q0 * buf[s] + q1 * buf[cur_lo] if k > 0 else (q0 + q1) * buf[s]
+            else:
+                for s in range(new_hi, edge - 1, -1):
+                    buf[s] = q0 * buf[s] + q1 * buf[s - k]
+            for s in range(cur_lo + k - 1, cur_lo - 1, -1):
+                buf[s] = q0 * buf[s]
+            cur_hi = new_hi
         else:
-            for s in range(new_lo, new_hi + 1):
-                acc = q0 * buf[s] if s >= cur_lo else 0.0
-                j = s - k
-                if cur_lo <= j <= cur_hi:
-                    acc += q1 * buf[j]
-                j -= 1
-                if up and cur_lo <= j <= cur_hi:
-                    acc += q2 * buf[j]
+            new_lo = cur_lo + k
+            edge = cur_hi + k  # highest total whose reads all stay at cur_hi or below
+            for s in range(new_lo, edge + 1):
+                buf[s] = q0 * buf[s] + q1 * buf[s - k] + q2 * buf[s - k - 1]
+            for s in range(edge + 1, cur_hi + 1):
+                acc = q0 * buf[s]
+                if s - k - 1 <= cur_hi:
+                    acc += q2 * buf[s - k - 1]
                 buf[s] = acc
-        cur_lo = new_lo
-        cur_hi = new_hi
+            cur_lo = new_lo
     return cur_lo, cur_hi
 
 
