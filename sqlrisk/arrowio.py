@@ -234,8 +234,9 @@ def read_outcomes(fn: str, values) -> OutcomeBatch:
     if (mass_nulls & valid).any():
         raise InputDataError(f"{fn}: an outcome has a NULL 'mass'; pass outcomes built by outcome_dist")
     mass, offsets, _ = list_column(mass_col, len(arr))
+    trials = np.where(valid, np.nan_to_num(cols["trials"]), 0).astype(np.int64)
     batch = OutcomeBatch(cols["origin"], cols["step"], mass, offsets,
-                         cols["trials"].astype(np.int64), cols["rounding"], valid)
+                         trials, cols["rounding"], valid)
     check_outcomes(fn, batch)
     return batch
 

@@ -72,10 +72,12 @@ MACROS = {
 }
 
 
-def _exists(con: duckdb.DuckDBPyConnection, name: str) -> bool:
-    rows = con.execute(
-        "SELECT count(*) FROM duckdb_functions() WHERE function_name = ?", [name]).fetchall()
-    return rows[0][0] > 0
+def _existing(con: duckdb.DuckDBPyConnection) -> set[str]:
+    """Which of our UDF names the database already has (one catalog query)."""
+    rows = con.execute("SELECT DISTINCT function_name FROM duckdb_functions() "
+                       "WHERE function_name IN (SELECT unnest(?::VARCHAR[]))",
+                       [list(UDFS)]).fetchall()
+    return {r[0] for r in rows}
 
 
 def register(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
@@ -88,8 +90,9 @@ def register(con: duckdb.DuckDBPyConnection) -> duckdb.DuckDBPyConnection:
     cannot be removed from here, and is kept (it is this same module's function,
     so it is never stale).
     """
+    existing = _existing(con)
     for name, (func, params, result) in UDFS.items():
-        if _exists(con, name):
+        if name in existing:
             try:
                 con.remove_function(name)
             except duckdb.InvalidInputException:

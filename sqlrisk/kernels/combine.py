@@ -125,8 +125,17 @@ def _spread(lattices: list[Outcome]) -> float:
     return min(hi - lo, 2.0 * t)
 
 
+def _canonical(o: Outcome):
+    return (o.step, o.origin, len(o.mass), o.rounding, o.trials, o.mass.tobytes())
+
+
 def combine(outcomes: list[Outcome]) -> Outcome:
-    """Distribution of the sum of independent outcomes (at least one)."""
+    """Distribution of the sum of independent outcomes (at least one).
+
+    The inputs are put in a canonical order first, so the result is
+    bit-identical whatever order the rows arrive in.
+    """
+    outcomes = sorted(outcomes, key=_canonical)
     shift = 0.0
     rounding = 0.0
     trials = [o.trials for o in outcomes if o.trials > 0]

@@ -19,8 +19,10 @@ This module decides, per group, which lattice to use:
   spread of the total rather than its range once groups get large;
 * the **step**: the exact common unit of the amounts (the largest ``u`` with
   every ``a_i / u`` an integer, searched over up to ``UNIT_DIGITS`` decimal
-  places) when the window fits in the bin budget at that unit; otherwise the
-  finest step that fits the budget. The budget is ``bins`` (DEFAULT_BINS), or
+  places) when the window fits in the exact budget at that unit (``bins``, or
+  up to EXACT_WORK / n and at most EXACT_MAX_BINS for small groups, whose
+  exact lattices are cheap); otherwise the finest step that fits the bin
+  budget. The bin budget is ``bins`` (DEFAULT_BINS), or
   more for large groups: splitting an amount adds at most ``p h^2 / 4`` to the
   variance, so the step is also kept below ``sqrt(4 * SPLIT_VARIANCE * V /
   sum(p))`` (at most AUTO_MAX_BINS bins). On an inexact step each amount is split
@@ -39,6 +41,11 @@ from numba import njit
 
 #: Bins the automatic lattice may use for one group's window.
 DEFAULT_BINS = 2048
+#: An exact lattice keeps every atom of the total (such as "this one large deal
+#: is won") where it is, so it may use more bins than an inexact one: up to
+#: EXACT_WORK / n bins for n uncertain deals, and at most EXACT_MAX_BINS.
+EXACT_WORK = 1 << 20
+EXACT_MAX_BINS = 1 << 16
 #: Hard ceiling on the bins of one outcome (32 MiB of mass), whatever the step.
 MAX_BINS = 1 << 22
 #: Ceiling on the bins the automatic lattice may grow to for large groups.
@@ -183,7 +190,8 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
         exact = is_multiple(amount, step)
     else:
         u, units, unit_g = common_unit(amount)
-        if u > 0 and width / u + 3 <= bins:
+        exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // n))
+        if u > 0 and width / u + 3 <= exact_bins:
             step = u
             exact = True
         else:

@@ -1,0 +1,263 @@
+"""Identities every outcome must satisfy, on random groups of deals (hypothesis).
+
+The sources are the issue's SQL contract and textbook facts about distribution
+functions ("common practice"). Examples stay small so the file runs in well
+under a minute; the numba kernels are compiled (or loaded from cache) once, by
+the module's warm-up fixture.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+import sqlrisk
+
+OUTCOME = sqlrisk.OUTCOME_SQL
+TOL = 1e-12
+#: Float rounding allowed between two readings of one CDF (a few units in the last place).
+NOISE = 1e-15
+DEALS = "(SELECT unnest(?::DOUBLE[]) AS amount, unnest(?::DOUBLE[]) AS prob)"
+
+# derandomize: a fixed sequence of examples, like a fixed seed (600 random ones per test
+# also passed when this file was written).
+SETTINGS = settings(max_examples=40, deadline=None, derandomize=True,
+                    suppress_health_check=[HealthCheck.function_scoped_fixture])
+
+
+@pytest.fixture(scope="module", autouse=True)
+def warm_up():
+    """Compile (or load) every kernel once, outside any example's timing."""
+    con = sqlrisk.connect()
+    con.execute(f"""SELECT outcome_bands(o, [1.0]), outcome_quantiles(o, [0.5]), outcome_reach(o, 1),
+        outcome_mean(o), outcome_sd(o), outcome_add(o, o), outcome_histogram(o, 3)
+        FROM (SELECT outcome_dist(amount, prob) o FROM {DEALS})""",
+                [[1.0, 2.5, 1e6], [0.5, 0.5, 0.5]]).fetchall()
+    con.close()
+
+
+# -- strategies ------------------------------------------------------------------
+
+probs = st.one_of(st.sampled_from([0.0, 1.0]), st.floats(0.0, 1.0))
+#: Small whole amounts: the automatic lattice is exact (unit 1, fewer than 2,048 bins).
+exact_deals = st.lists(st.tuples(st.integers(-60, 120), probs), min_size=1, max_size=12)
+#: Any amounts: cents, wide ranges, so the automatic lattice is often inexact.
+amounts = st.one_of(st.integers(-60, 120).map(float),
+                    st.integers(-10**8, 10**8).map(lambda c: c / 100),
+                    st.floats(-1e7, 1e7, allow_nan=False).map(lambda x: round(x, 2)))
+any_deals = st.lists(st.tuples(amounts, probs), min_size=1, max_size=12)
+
+
+def columns(deals):
+    return [[float(a) for a, _ in deals], [float(p) for _, p in deals]]
+
+
+def one(con, sql, params=()):
+    return con.execute(sql, list(params)).fetchone()[0]
+
+
+def dist(con, deals, step=None):
+    return one(con, f"SELECT outcome_dist(amount, prob, step := ?) FROM {DEALS}",
+               [step, *columns(deals)])
+
+
+def mass_by_total(o) -> dict[float, float]:
+    return {o["origin"] + i * o["step"]: m for i, m in enumerate(o["mass"])}
+
+
+def assert_same_mass(o1, o2):
+    m1, m2 = mass_by_total(o1), mass_by_total(o2)
+    for total in set(m1) | set(m2):
+        assert m1.get(total, 0.0) == pytest.approx(m2.get(total, 0.0), abs=TOL), total
+
+
+# -- mass, bands, quantiles --------------------------------------------------------
+
+@SETTINGS
+@given(deals=any_deals, cuts=st.lists(st.floats(-2e7, 2e7), max_size=6, unique=True))
+def test_mass_and_bands_sum_to_one(con, deals, cuts):
+    o = dist(con, deals)
+    assert min(o["mass"]) >= 0.0  # source: issue contract, mass non-negative
+    assert sum(o["mass"]) == pytest.approx(1.0, abs=TOL)  # source: issue contract
+    bands = one(con, f"SELECT band_odds(amount, prob, ?::DOUBLE[]) FROM {DEALS}",
+                [sorted(cuts), *columns(deals)])
+    assert len(bands) == len(cuts) + 1 and min(bands) >= 0.0  # source: issue contract
+    assert sum(bands) == pytest.approx(1.0, abs=TOL)  # common practice: bands partition
+
+
+@SETTINGS
+@given(deals=any_deals, fractions=st.lists(st.floats(-0.2, 1.2), min_size=2, max_size=25))
+def test_probability_below_a_cut_never_decreases_as_the_cut_moves_up(con, deals, fractions):
+    o = dist(con, deals)
+    lo = o["origin"]
+    hi = lo + o["step"] * (len(o["mass"]) - 1)
+    cuts = sorted(lo + f * (hi - lo) for f in fractions)
+    below = [r[0] for r in con.execute(
+        f"SELECT outcome_bands(?::{OUTCOME}, [c])[1] FROM unnest(?::DOUBLE[]) u(c) ORDER BY c",
+        [o, cuts]).fetchall()]
+    # common practice: a CDF is non-decreasing
+    assert all(b >= a - NOISE for a, b in zip(below, below[1:]))
+
+
+@SETTINGS
+@given(deals=any_deals, levels=st.lists(st.floats(0.0, 1.0), min_size=1, max_size=12))
+def test_quantiles_never_decrease_in_the_level(con, deals, levels):
+    levels = sorted(levels)
+    qs = one(con, f"SELECT total_quantiles(amount, prob, ?::DOUBLE[]) FROM {DEALS}",
+             [levels, *columns(deals)])
+    assert qs == sorted(qs)  # common practice: a quantile function is non-decreasing
+
+
+@SETTINGS
+@given(deals=exact_deals)
+def test_quantile_of_the_cdf_is_the_point_itself_on_exact_lattices(con, deals):
+    o = dist(con, deals)
+    assert o["rounding"] == 0.0
+    cum = np.cumsum(o["mass"])
+    # points whose own mass is above the 1e-12 level tolerance (readout.Q_TOL)
+    points = [i for i, m in enumerate(o["mass"]) if m > 1e-9]
+    levels = [min(float(cum[i]), 1.0) for i in points]
+    qs = one(con, f"SELECT outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])", [o, levels])
+    # common practice: Q(F(x)) = x for every support point x (inverted-CDF definition)
+    assert qs == [o["origin"] + i * o["step"] for i in points]
+
+
+# -- merge, add, shift ---------------------------------------------------------------
+
+owned_deals = st.lists(st.tuples(st.integers(0, 3), st.integers(-40, 200), probs),
+                       min_size=1, max_size=14)
+
+
+@SETTINGS
+@given(deals=owned_deals, step=st.sampled_from([1.0, 5.0, 25.0]))
+def test_merge_of_owner_outcomes_is_the_outcome_of_all_deals(con, deals, step):
+    owner, amount, prob = zip(*deals)
+    amount = [a * step for a in amount]  # multiples of the step: one exact lattice
+    sql = (f"SELECT outcome_merge(o) FROM (SELECT owner, outcome_dist(amount, prob, step := ?) o "
+           "FROM (SELECT unnest(?::INT[]) owner, unnest(?::DOUBLE[]) amount, "
+           "unnest(?::DOUBLE[]) prob) GROUP BY owner)")
+    merged = one(con, sql, [step, list(owner), amount, list(prob)])
+    whole = dist(con, list(zip(amount, prob)), step=step)
+    assert_same_mass(merged, whole)  # source: issue contract (sum of independent outcomes)
+    assert merged["rounding"] == 0.0
+
+
+@SETTINGS
+@given(deals=owned_deals, order=st.randoms(use_true_random=False))
+def test_merge_is_commutative_and_associative(con, deals, order):
+    owner, amount, prob = zip(*deals)
+    con.execute("CREATE OR REPLACE TEMP TABLE parts AS SELECT owner, outcome_dist(amount, prob) o "
+                "FROM (SELECT unnest(?::INT[]) owner, unnest(?::DOUBLE[]) amount, "
+                "unnest(?::DOUBLE[]) prob) GROUP BY owner",
+                [list(owner), [float(a) for a in amount], list(prob)])
+    parts = con.execute("SELECT o FROM parts").fetchall()
+    shuffled = [p[0] for p in parts]
+    order.shuffle(shuffled)
+    merged = one(con, "SELECT outcome_merge(o) FROM parts")
+    reordered = one(con, f"SELECT outcome_merge(o) FROM unnest(?::{OUTCOME}[]) u(o)", [shuffled])
+    # pairwise with outcome_add, left to right: ((o1 + o2) + o3) + ...
+    chained = shuffled[0]
+    for part in shuffled[1:]:
+        chained = one(con, f"SELECT outcome_add(?::{OUTCOME}, ?::{OUTCOME})", [chained, part])
+    # a merge of merges: the first half and the rest
+    half = len(shuffled) // 2 or 1
+    nested = one(con, f"SELECT outcome_merge(o) FROM (SELECT outcome_merge(o) o FROM "
+                 f"unnest(?::{OUTCOME}[]) u(o) UNION ALL SELECT outcome_merge(o) FROM "
+                 f"unnest(?::{OUTCOME}[]) u(o)) WHERE o IS NOT NULL",
+                 [shuffled[:half], shuffled[half:]])
+    for other in (reordered, chained, nested):
+        assert_same_mass(merged, other)  # common practice: + is commutative and associative
+
+
+@SETTINGS
+@given(deals=exact_deals, booked=st.integers(-10**6, 10**6),
+       levels=st.lists(st.floats(0.0, 1.0), min_size=1, max_size=8))
+def test_shift_moves_quantiles_and_bands_by_the_booked_amount(con, deals, booked, levels):
+    o = dist(con, deals)
+    shifted = one(con, f"SELECT outcome_shift(?::{OUTCOME}, ?)", [o, float(booked)])
+    qs = one(con, f"SELECT outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])", [o, levels])
+    moved = one(con, f"SELECT outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])", [shifted, levels])
+    assert moved == [q + booked for q in qs]  # common practice: Q_{S+b}(q) = Q_S(q) + b
+    cuts = sorted({o["origin"] + 0.5, o["origin"] + 3.0, qs[0], qs[-1] + 1.0})
+    bands = one(con, f"SELECT outcome_bands(?::{OUTCOME}, ?::DOUBLE[])", [o, cuts])
+    after = one(con, f"SELECT outcome_bands(?::{OUTCOME}, ?::DOUBLE[])",
+                [shifted, [c + booked for c in cuts]])
+    assert after == bands  # common practice: P(S + b < c + b) = P(S < c)
+
+
+@SETTINGS
+@given(deals=any_deals, booked=st.integers(-10**8, 10**8).map(lambda c: c / 100),
+       levels=st.lists(st.floats(0.0, 1.0), min_size=1, max_size=8))
+def test_shift_on_any_lattice_moves_quantiles_by_the_booked_amount(con, deals, booked, levels):
+    o = dist(con, deals)
+    shifted = one(con, f"SELECT outcome_shift(?::{OUTCOME}, ?)", [o, booked])
+    assert shifted["mass"] == o["mass"] and shifted["step"] == o["step"]
+    qs = one(con, f"SELECT outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])", [o, levels])
+    moved = one(con, f"SELECT outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])", [shifted, levels])
+    scale = abs(o["origin"]) + o["step"] * len(o["mass"]) + abs(booked)
+    # common practice: Q_{S+b}(q) = Q_S(q) + b (up to float rounding of origin + b)
+    assert moved == pytest.approx([q + booked for q in qs], rel=0, abs=1e-12 * scale)
+
+
+# -- row order, threads -------------------------------------------------------------------
+
+@SETTINGS
+@given(deals=any_deals, order=st.randoms(use_true_random=False))
+def test_shuffled_rows_give_bit_identical_results(con, deals, order):
+    shuffled = list(deals)
+    order.shuffle(shuffled)
+    sql = (f"SELECT outcome_dist(amount, prob), band_odds(amount, prob, [0, 1000]), "
+           f"total_quantiles(amount, prob, [0.1, 0.5, 0.9]), reach_odds(amount, prob, 500) "
+           f"FROM {DEALS}")
+    first = con.execute(sql, columns(deals)).fetchall()
+    second = con.execute(sql, columns(shuffled)).fetchall()
+    assert first == second  # source: issue contract, results do not depend on row order
+
+
+def test_threads_and_row_order_do_not_change_results(con):
+    rng = np.random.default_rng(11)
+    n = 4000
+    con.execute("CREATE TABLE deals AS SELECT unnest(?::INT[]) owner, unnest(?::DOUBLE[]) amount, "
+                "unnest(?::DOUBLE[]) prob, unnest(range(?)) id",
+                [rng.integers(0, 50, n).tolist(), rng.uniform(-5e3, 2e5, n).round(2).tolist(),
+                 rng.uniform(0.0, 1.0, n).round(3).tolist(), n])
+    sql = ("SELECT owner, outcome_dist(amount, prob), band_odds(amount, prob, [1e5, 5e5]), "
+           "reach_odds(amount, prob, 3e5), total_quantiles(amount, prob, [0.1, 0.5, 0.9]) "
+           "FROM (SELECT * FROM deals ORDER BY {order}) GROUP BY owner ORDER BY owner")
+    con.execute("SET threads = 1")
+    one_thread = con.execute(sql.format(order="id")).fetchall()
+    con.execute("SET threads = 4")
+    for order in ("id DESC", "hash(id)", "random()"):
+        # source: issue contract, results do not depend on row order or threads
+        assert con.execute(sql.format(order=order)).fetchall() == one_thread
+
+
+def test_merge_is_bit_identical_under_row_order(con):
+    con.execute("SET threads = 1")
+    parts = [r[0] for r in con.execute(
+        "SELECT outcome_dist(a, p) FROM (VALUES (1, 100, 0.5), (1, 300, 0.5), (2, 200, 0.5), "
+        "(2, 100, 0.5), (3, 100, 0.1)) t(g, a, p) GROUP BY g ORDER BY g").fetchall()]
+    sql = f"SELECT outcome_merge(o) FROM unnest(?::{OUTCOME}[]) u(o)"
+    # source: issue contract, results do not depend on row order
+    assert one(con, sql, [parts]) == one(con, sql, [parts[::-1]])
+
+
+# -- aggregates = scalars on outcome_dist ------------------------------------------------
+
+@SETTINGS
+@given(deals=any_deals, cuts=st.lists(st.floats(-2e7, 2e7), max_size=5, unique=True),
+       target=st.floats(-2e7, 2e7), levels=st.lists(st.floats(0.0, 1.0), max_size=5))
+def test_aggregates_equal_scalars_on_outcome_dist_exactly(con, deals, cuts, target, levels):
+    cuts = sorted(cuts)
+    row = con.execute(
+        "SELECT band_odds(amount, prob, ?::DOUBLE[]), "
+        "outcome_bands(outcome_dist(amount, prob), ?::DOUBLE[]), "
+        "reach_odds(amount, prob, ?), outcome_reach(outcome_dist(amount, prob), ?), "
+        "total_quantiles(amount, prob, ?::DOUBLE[]), "
+        f"outcome_quantiles(outcome_dist(amount, prob), ?::DOUBLE[]) FROM {DEALS}",
+        [cuts, cuts, target, target, levels, levels, *columns(deals)]).fetchone()
+    assert row[0] == row[1]  # source: issue contract, band_odds = outcome_bands(outcome_dist)
+    assert row[2] == row[3]
+    assert row[4] == row[5]
