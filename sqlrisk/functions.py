@@ -26,6 +26,8 @@ MAX_HISTOGRAM_BINS = 10_000
 # -- helpers ----------------------------------------------------------------
 
 def _subset(b: OutcomeBatch, keep: np.ndarray) -> OutcomeBatch:
+    if keep.all():
+        return b
     lengths = np.diff(b.offsets)[keep]
     idx = io._ranges(b.offsets[:-1][keep], lengths)
     offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
@@ -34,6 +36,8 @@ def _subset(b: OutcomeBatch, keep: np.ndarray) -> OutcomeBatch:
 
 
 def _ragged_subset(values, offsets, keep):
+    if keep.all():
+        return values, offsets
     lengths = np.diff(offsets)[keep]
     idx = io._ranges(offsets[:-1][keep], lengths)
     return values[idx], np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)

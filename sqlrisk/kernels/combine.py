@@ -20,8 +20,10 @@ from scipy.signal import fftconvolve
 
 from .lattice import common_unit
 
-#: Mass a convolution may drop from each tail (summed over a merge, ~1e-14 at worst).
-TRIM = 1e-18
+#: Mass a convolution may drop from each tail (summed over a merge, ~1e-12 at worst).
+TRIM = 1e-15
+#: Bins below this share of the peak count as rounding noise at the tails.
+NOISE = 1e-16
 #: Bins a merged outcome may hold before the common step is coarsened.
 MERGE_MAX_BINS = 1 << 18
 #: Relative tolerance when comparing steps.
@@ -59,9 +61,9 @@ def respread(o: Outcome, step: float) -> tuple[Outcome, float]:
         return Outcome(o.origin, step, mass, o.trials, o.rounding), 0.0
     low = np.floor(pos).astype(np.int64)
     frac = pos - low
-    mass = np.zeros(low[-1] + 2)
-    np.add.at(mass, low, o.mass * (1.0 - frac))
-    np.add.at(mass, low + 1, o.mass * frac)
+    size = low[-1] + 2
+    mass = (np.bincount(low, o.mass * (1.0 - frac), minlength=size)
+            + np.bincount(low + 1, o.mass * frac, minlength=size))
     return Outcome(o.origin, step, _trim_zeros(mass), o.trials, o.rounding), step
 
 
@@ -79,15 +81,22 @@ def _convolve(x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 
 def _trim_tails(o: Outcome) -> Outcome:
-    """Drop leading and trailing bins whose cumulative mass is below TRIM."""
-    cum = np.cumsum(o.mass)
+    """Drop leading and trailing bins that hold only rounding noise or negligible mass.
+
+    A bin goes when its mass is below NOISE x the peak (an FFT product leaves
+    about 1e-17 everywhere, which would otherwise keep every support at its full
+    range) and the mass dropped from that side stays below TRIM in total.
+    """
+    mass = o.mass
+    small = mass <= NOISE * mass.max()
+    cum = np.cumsum(np.where(small, mass, np.inf))
     first = int(np.searchsorted(cum, TRIM, side="right"))
-    tail = np.cumsum(o.mass[::-1])
-    last = len(o.mass) - int(np.searchsorted(tail, TRIM, side="right"))
-    if first == 0 and last == len(o.mass):
+    back = np.cumsum(np.where(small, mass, np.inf)[::-1])
+    last = len(mass) - int(np.searchsorted(back, TRIM, side="right"))
+    if first == 0 and last == len(mass):
         return o
     first = min(first, last - 1)
-    return Outcome(o.origin + first * o.step, o.step, o.mass[first:last], o.trials, o.rounding)
+    return Outcome(o.origin + first * o.step, o.step, mass[first:last], o.trials, o.rounding)
 
 
 def _common_step(steps: list[float], spread: float) -> tuple[float, bool]:

@@ -31,7 +31,7 @@ from numpy.polynomial.legendre import leggauss
 from scipy.special import ndtr, ndtri
 
 from .lattice import DEFAULT_BINS, common_unit
-from .outcome import OK, OutcomeBatch, exact_outcomes
+from .outcome import OK, exact_outcomes, splice
 
 NODES = 64
 GH_MAX_RHO = 0.25
@@ -94,7 +94,7 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
         rho_rows = np.full(len(rows), value)
         z, w = nodes(float(value))
         steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z)
-        base = _splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w))
+        base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w))
     return base, status
 
 
@@ -152,23 +152,3 @@ def _mix(a, p, rho_rows, offsets, steps, z, w):
             acc[g][start:start + len(mass)] += mass
     return [(ref[g] + first[g] * batch.step[g], batch.step[g], acc[g] / acc[g].sum(),
              batch.rounding[g]) for g in range(n)]
-
-
-def _splice(base: OutcomeBatch, groups, mixed) -> OutcomeBatch:
-    """Replace the rows ``groups`` of ``base`` by the mixtures."""
-    lengths = np.diff(base.offsets).copy()
-    rows = {int(g): m for g, m in zip(groups, mixed)}
-    for g, m in rows.items():
-        lengths[g] = len(m[2])
-    offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
-    mass = np.empty(offsets[-1])
-    origin = base.origin.copy()
-    step = base.step.copy()
-    rounding = base.rounding.copy()
-    for g in range(len(base)):
-        if g in rows:
-            origin[g], step[g], row, rounding[g] = rows[g]
-        else:
-            row = base.row(g)
-        mass[offsets[g]:offsets[g + 1]] = row
-    return OutcomeBatch(origin, step, mass, offsets, base.trials, rounding, base.valid)
