@@ -74,16 +74,18 @@ def outcome_sim(rows, trials, seed, correlation, step):
     n_trials = _per_group(fn, trials, "trials", 100_000, n)
     bad = ~((n_trials >= 1) & (n_trials <= MAX_TRIALS))
     if bad.any():
-        raise ParameterError(f"{fn}: trials {io._fmt(n_trials[bad][0])} is outside "
+        raise ParameterError(f"{fn}: trials {n_trials[bad][0]:.0f} is outside "
                              f"[1, {MAX_TRIALS:,}]; 100,000 gives band odds to about +/-0.3%")
     seeds_f = io._array(seed)
     seeds = np.asarray(seeds_f.fill_null(0).to_numpy(zero_copy_only=False), dtype=np.int64)
     rho = _per_group(fn, correlation, "correlation", 0.0, n)
     check_correlation(fn, rho)
-    step_req = _per_group(fn, step, "step", 0.0, n)
-    if (step_req < 0).any() or (~np.isfinite(step_req)).any():
-        raise ParameterError(f"{fn}: step {io._fmt(step_req[~(step_req >= 0)][0])} must be > 0 "
+    step_req = _per_group(fn, step, "step", np.nan, n)
+    bad = ~np.isnan(step_req) & ~(step_req > 0)
+    if bad.any():
+        raise ParameterError(f"{fn}: step {io._fmt(step_req[bad][0])} must be > 0 "
                              "(or NULL for the automatic lattice)")
+    step_req = np.nan_to_num(step_req, nan=0.0)
     amount, prob, low, high, offsets = _sim_deals(fn, groups)
     words = np.stack([amount, prob, low, high], axis=1).view(np.uint64).ravel()
     keys = group_keys(seeds.view(np.uint64), words, offsets * 4)
@@ -142,7 +144,10 @@ def correlated_dist(fn, amount, prob, offsets, step_req, correlation, n):
     """Exact outcomes; groups with ``correlation > 0`` use the one-factor copula."""
     rho = _per_group(fn, correlation, "correlation", 0.0, n)
     check_correlation(fn, rho)
-    return correlated_outcomes(amount, prob, offsets, rho, step_req)
+    try:
+        return correlated_outcomes(amount, prob, offsets, rho, step_req)
+    except ValueError as exc:
+        raise ParameterError(f"{fn}: {exc}") from None
 
 
 def outcome_bands_ci(o, cuts, level):

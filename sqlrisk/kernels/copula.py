@@ -7,18 +7,21 @@ over Gauss-Hermite nodes ``z_j`` (Andersen, Sidenius & Basu, "All your hedges
 in one basket", Risk 2003). Every node is computed on one lattice (same step,
 same shift), so the mixture is a weighted sum of aligned arrays.
 
-The conditional probabilities change with ``z`` on a scale of
-``s = sqrt((1 - rho) / rho)``. For ``rho <= GH_MAX_RHO`` (``s >= 1.7``) the
-integrand is smooth on the scale of the normal weight and ``NODES`` = 64
-Gauss-Hermite nodes (probabilists' weight ``exp(-z^2/2)``) integrate it to
-about 1e-15. Above that, Gauss-Hermite converges slowly (1e-4 at rho = 0.5
-with 64 nodes), so the factor is integrated by composite Gauss-Legendre:
-panels of width ``2 min(1, s)`` over ``[-Z_MAX, Z_MAX]``, ``PANEL_POINTS`` = 16
-points each (about 1e-11 at rho = 0.5, 1e-16 at rho = 0.8); the node count,
-and the cost, grow like ``1 / s`` as rho approaches 1. Nodes whose weight is
-below ``MIN_WEIGHT`` carry no visible mass and are skipped.
-``tests/test_correlation.py`` measures the accuracy against SciPy's adaptive
-quadrature.
+Two scales decide the quadrature. The conditional probabilities change with
+``z`` on a scale of ``s = sqrt((1 - rho) / rho)``, and a group's conditional
+outcome moves by one standard deviation when ``z`` moves by ``r`` (the
+"resolution", ``factor_resolution``), which shrinks like ``1 / sqrt(n)`` for
+``n`` deals. While ``rho <= GH_MAX_RHO`` and ``r >= GH_RESOLUTION``, ``NODES``
+= 64 Gauss-Hermite nodes (probabilists' weight ``exp(-z^2/2)``) integrate the
+mixture to about 1e-10 or better. Otherwise the factor is integrated by
+composite Gauss-Legendre: panels of width ``min(2 min(1, s), 4 r)`` over
+``[-Z_MAX, Z_MAX]``, ``PANEL_POINTS`` = 16 points each (about 1e-11 at
+rho = 0.5, 1e-16 at rho = 0.8 for small groups, and 1e-8 or better for groups
+of a thousand deals). The node count, and the cost, grow like ``1 / s`` and
+like ``sqrt(n)``; past ``MAX_NODES`` the function refuses and points to
+``outcome_sim``. Nodes whose weight is below ``MIN_WEIGHT`` carry no visible
+mass and are skipped. ``tests/test_correlation.py`` measures the accuracy
+against SciPy's adaptive quadrature.
 """
 
 from __future__ import annotations
@@ -30,11 +33,16 @@ from numpy.polynomial.hermite_e import hermegauss
 from numpy.polynomial.legendre import leggauss
 from scipy.special import ndtr, ndtri
 
-from .lattice import DEFAULT_BINS, common_unit
+from .lattice import (AUTO_MAX_BINS, DEFAULT_BINS, EXACT_MAX_BINS, EXACT_WORK, SPLIT_VARIANCE,
+                      common_unit)
 from .outcome import OK, exact_outcomes, splice
 
 NODES = 64
 GH_MAX_RHO = 0.25
+#: Gauss-Hermite is used only while conditional outcomes are wider than this in z.
+GH_RESOLUTION = 0.3
+#: Most quadrature nodes (each costs one lattice computation of the group).
+MAX_NODES = 8192
 PANEL_POINTS = 16
 Z_MAX = 8.5
 MIN_WEIGHT = 1e-20
@@ -44,14 +52,24 @@ P_FLOOR = 1e-300
 P_CEIL = 1.0 - 2.0**-53
 
 
-def nodes(rho: float) -> tuple[np.ndarray, np.ndarray]:
-    """Quadrature nodes and weights for E[g(Z)], Z standard normal, at correlation rho."""
-    if rho <= GH_MAX_RHO:
+def nodes(rho: float, resolution: float = math.inf) -> tuple[np.ndarray, np.ndarray]:
+    """Quadrature nodes and weights for E[g(Z)], Z standard normal, at correlation rho.
+
+    ``resolution`` is the factor step over which the conditional outcome moves
+    by about one standard deviation (``factor_resolution``); panels are kept
+    to four such steps so a large group's narrow conditional outcomes are
+    integrated, not sampled at a few points.
+    """
+    if rho <= GH_MAX_RHO and resolution >= GH_RESOLUTION:
         z, w = hermegauss(NODES)
         w = w / math.sqrt(2.0 * math.pi)
     else:
-        width = 2.0 * min(1.0, math.sqrt((1.0 - rho) / rho))
+        width = min(2.0 * min(1.0, math.sqrt((1.0 - rho) / rho)), 4.0 * resolution)
         panels = int(math.ceil(2.0 * Z_MAX / width))
+        if panels * PANEL_POINTS > MAX_NODES:
+            raise ValueError(
+                f"correlation {rho:g} on a group this large needs {panels * PANEL_POINTS:,} "
+                f"quadrature nodes (limit {MAX_NODES:,}); use outcome_sim for it")
         edges = np.linspace(-Z_MAX, Z_MAX, panels + 1)
         x, v = leggauss(PANEL_POINTS)
         half = (edges[1:] - edges[:-1])[:, None] / 2.0
@@ -59,6 +77,28 @@ def nodes(rho: float) -> tuple[np.ndarray, np.ndarray]:
         w = (half * v).ravel() * np.exp(-0.5 * z * z) / math.sqrt(2.0 * math.pi)
     keep = w > MIN_WEIGHT
     return z[keep], w[keep]
+
+
+def factor_resolution(amount, prob, offsets, rho: float) -> float:
+    """Smallest factor step over which some group's conditional mean moves by one
+    conditional standard deviation: sd(z) / |d mean / dz| over z in [-6, 6]."""
+    grid = np.linspace(-6.0, 6.0, 49)
+    inner = (prob > 0) & (prob < 1)
+    threshold = np.zeros(len(prob))
+    threshold[inner] = ndtri(prob[inner])
+    load, rest = math.sqrt(rho), math.sqrt(1.0 - rho)
+    best = math.inf
+    for z in grid:
+        arg = (threshold - load * z) / rest
+        p = np.where(inner, ndtr(arg), prob)
+        slope = np.where(inner, amount * load / rest * np.exp(-0.5 * arg * arg) /
+                         math.sqrt(2.0 * math.pi), 0.0)
+        var = np.add.reduceat(amount * amount * p * (1.0 - p), offsets[:-1])
+        move = np.abs(np.add.reduceat(slope, offsets[:-1]))
+        ok = (move > 0) & (var > 0)
+        if ok.any():
+            best = min(best, float(np.min(np.sqrt(var[ok]) / move[ok])))
+    return best
 
 
 def conditional(prob: np.ndarray, rho: np.ndarray, z: float) -> np.ndarray:
@@ -92,7 +132,7 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
         rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
         a, p = amount[rows], prob[rows]
         rho_rows = np.full(len(rows), value)
-        z, w = nodes(float(value))
+        z, w = nodes(float(value), factor_resolution(a, p, sub_offsets, float(value)))
         steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z)
         base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w))
     return base, status
@@ -111,11 +151,17 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z):
                    hi_end.origin[g] + hi_end.step[g] * (len(hi_end.row(g)) - 1))
         width = max(high - low, 0.0)
         chunk = a[offsets[g]:offsets[g + 1]]
-        unit = common_unit(chunk[(chunk != 0)])[0]
-        if unit > 0 and width / unit + 3 <= bins:
+        chance = p[offsets[g]:offsets[g + 1]]
+        live = (chunk != 0) & (chance > 0) & (chance < 1)
+        unit = common_unit(chunk[live])[0] if live.any() else 0.0
+        exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // max(int(live.sum()), 1)))
+        if unit > 0 and width / unit + 3 <= exact_bins:
             steps[g] = unit
-        else:
-            steps[g] = max(width / max(bins - 8, 1), lo_end.step[g], hi_end.step[g], 1e-300)
+            continue
+        var = float(np.sum(chunk[live] ** 2 * chance[live] * (1 - chance[live])))
+        fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / max(float(chance[live].sum()), 1e-300))
+        step = max(min(width / max(bins - 8, 1), fine), width / AUTO_MAX_BINS, 1e-300)
+        steps[g] = unit if unit > 0 and step < unit else step
     return steps
 
 
