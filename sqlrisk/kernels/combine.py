@@ -16,9 +16,8 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import fftconvolve
-
 from .lattice import common_unit
+from .spectral import fft_convolve
 
 #: Mass a convolution may drop from each tail (summed over a merge, ~1e-12 at worst).
 TRIM = 1e-15
@@ -75,9 +74,7 @@ def _trim_zeros(mass: np.ndarray) -> np.ndarray:
 def _convolve(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     if len(x) * len(y) <= DIRECT_LIMIT:
         return np.convolve(x, y)
-    out = fftconvolve(x, y)
-    np.maximum(out, 0.0, out=out)
-    return out
+    return fft_convolve(x, y)
 
 
 def _trim_tails(o: Outcome) -> Outcome:

@@ -161,7 +161,7 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z):
         var = float(np.sum(chunk[live] ** 2 * chance[live] * (1 - chance[live])))
         fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / max(float(chance[live].sum()), 1e-300))
         step = max(min(width / max(bins - 8, 1), fine), width / AUTO_MAX_BINS, 1e-300)
-        steps[g] = unit if unit > 0 and step < unit else step
+        steps[g] = unit if unit > 0 and step < 2.0 * unit else step
     return steps
 
 

@@ -25,7 +25,8 @@ This module decides, per group, which lattice to use:
   budget. The bin budget is ``bins`` (DEFAULT_BINS), or
   more for large groups: splitting an amount adds at most ``p h^2 / 4`` to the
   variance, so the step is also kept below ``sqrt(4 * SPLIT_VARIANCE * V /
-  sum(p))`` (at most AUTO_MAX_BINS bins). On an inexact step each amount is split
+  sum(p))`` (at most AUTO_MAX_BINS bins); when that step is under twice the
+  exact unit, the unit is used instead. On an inexact step each amount is split
   between its two neighbouring lattice points with weights that keep its mean
   (``a = (k + f) h`` goes to ``k h`` with weight ``1 - f`` and to ``(k+1) h``
   with weight ``f``), so the lattice total has exactly the mean of the true
@@ -40,7 +41,7 @@ import numpy as np
 from numba import njit
 
 #: Bins the automatic lattice may use for one group's window.
-DEFAULT_BINS = 2048
+DEFAULT_BINS = 1024
 #: An exact lattice keeps every atom of the total (such as "this one large deal
 #: is won") where it is, so it may use more bins than an inexact one: up to
 #: EXACT_WORK / n bins for n uncertain deals, and at most EXACT_MAX_BINS.
@@ -51,7 +52,7 @@ MAX_BINS = 1 << 22
 #: Ceiling on the bins the automatic lattice may grow to for large groups.
 AUTO_MAX_BINS = 1 << 20
 #: Largest share of the variance that splitting amounts may add on the automatic lattice.
-SPLIT_VARIANCE = 1e-3
+SPLIT_VARIANCE = 4e-3
 #: Mass the window may leave out on each side of the total.
 TAIL = 1e-16
 LOG_TAIL = math.log(1.0 / TAIL)
@@ -199,7 +200,8 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
             step = width / max(bins - 8, 1)
             fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / wins)
             step = max(min(step, fine), width / AUTO_MAX_BINS)
-            if u > 0 and step < u:
+            if u > 0 and step < 2.0 * u and width / u <= AUTO_MAX_BINS:
+                # The exact unit costs at most twice the bins: exactness is worth it.
                 step = u
                 exact = True
     place_deals(amount, prob, step, exact, units, unit_g, offset, frac)

@@ -8,21 +8,24 @@ outcome and the number of simulated totals otherwise; ``rounding`` bounds
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
-
-from scipy.signal import fftconvolve
 
 from .combine import Outcome, respread
 from .lattice import DEFAULT_BINS, EMPTY, OK, TOO_MANY_BINS
 from .lattice import _window as window
 from .recursion import exact_batch
-from .spectral import fold_group
+from .spectral import fft_convolve, fold_group
 
 #: Groups with at least this many uncertain deals whose window cuts their
 #: support are computed as pooled leaves (see ``_pooled``).
 POOL_MIN_DEALS = 4096
+#: Threads one batch of groups is split between, and the fewest deals worth it.
+THREADS = min(2, os.cpu_count() or 1)
+PARALLEL_MIN_DEALS = 20_000
 #: Deals per leaf of the pooled computation.
 LEAF_DEALS = 256
 
@@ -104,7 +107,7 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
         step_req = np.zeros(n_groups)
     step_req = np.nan_to_num(np.asarray(step_req, dtype=np.float64), nan=0.0)
     (status, origin, step, _exact, rounding, linear, lo, mass_offsets, mass,
-     k, frac, p, a0, a1) = exact_batch(amount, prob, offsets, step_req, int(bins))
+     k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins))
     wide = np.flatnonzero((status == OK) & ~linear)
     pooled = [g for g in wide if a1[g] - a0[g] >= POOL_MIN_DEALS and not (step_req[g] > 0)]
     for g in wide:
@@ -119,6 +122,35 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
                 for g in pooled]
         batch = splice(batch, pooled, [(o.origin, o.step, o.mass, o.rounding) for o in rows])
     return batch, status
+
+
+def _exact_batch_threads(amount, prob, offsets, step_req, bins):
+    """``exact_batch`` with the groups split between THREADS threads.
+
+    The kernel releases the GIL, and every group is computed on its own, so the
+    halves give the same numbers as one call would.
+    """
+    n_groups = len(offsets) - 1
+    if THREADS < 2 or n_groups < 2 * THREADS or offsets[-1] < PARALLEL_MIN_DEALS:
+        return exact_batch(amount, prob, offsets, step_req, bins)
+    cuts = np.searchsorted(offsets, np.linspace(0, offsets[-1], THREADS + 1)[1:-1])
+    bounds = [0, *sorted(set(int(c) for c in cuts if 0 < c < n_groups)), n_groups]
+    parts = []
+    for g0, g1 in zip(bounds[:-1], bounds[1:]):
+        r0, r1 = offsets[g0], offsets[g1]
+        parts.append((amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins))
+    with ThreadPoolExecutor(len(parts)) as pool:
+        results = list(pool.map(lambda args: exact_batch(*args), parts))
+    rows = [offsets[g0] for g0 in bounds[:-1]]
+    masses = [r[8] for r in results]
+    mass_shift = np.cumsum([0] + [len(m) for m in masses[:-1]])
+    return (
+        *(np.concatenate([r[i] for r in results]) for i in range(7)),
+        np.concatenate([[0]] + [r[7][1:] + shift for r, shift in zip(results, mass_shift)]),
+        np.concatenate(masses),
+        *(np.concatenate([r[i] for r in results]) for i in (9, 10, 11)),
+        *(np.concatenate([r[i] + row for r, row in zip(results, rows)]) for i in (12, 13)),
+    )
 
 
 def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int) -> Outcome:
@@ -168,7 +200,7 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int) -> Outcome:
 def _merge_nodes(x, y, step):
     """Convolve two partial sums and cut the result to its Bernstein window."""
     origin = x[0] + y[0]
-    mass = fftconvolve(x[1], y[1]) if len(x[1]) * len(y[1]) > 1 << 15 else np.convolve(x[1], y[1])
+    mass = fft_convolve(x[1], y[1]) if len(x[1]) * len(y[1]) > 1 << 15 else np.convolve(x[1], y[1])
     mean, var, largest = x[2] + y[2], x[3] + y[3], max(x[4], y[4])
     lo, hi = window(mean, var, largest, -np.inf, np.inf)
     first = max(0, int(np.floor((lo - origin) / step)) - 1)
