@@ -15,7 +15,7 @@ from .kernels.copula import correlated_outcomes
 from .kernels.empirical import bin_totals, wilson
 from .kernels.lattice import common_unit
 from .kernels.outcome import OK, OutcomeBatch, concat
-from .kernels.simulate import MAX_TRIALS, group_keys, simulate_batch
+from .kernels.simulate import MAX_TRIALS, group_keys, simulate_threads
 
 #: Simulated totals held at once (x 8 bytes); groups are simulated in slices of this size.
 TOTALS_PER_SLICE = 1 << 23
@@ -122,7 +122,7 @@ def _simulate_slice(amount, prob, low, high, threshold, offsets, rho, n_trials, 
     trials = np.where(valid[sel], n_trials[sel], 0).astype(np.int64)
     a0, a1 = offsets[start], offsets[stop]
     local = offsets[start:stop + 1] - a0
-    totals, t_offsets = simulate_batch(amount[a0:a1], prob[a0:a1], low[a0:a1], high[a0:a1],
+    totals, t_offsets = simulate_threads(amount[a0:a1], prob[a0:a1], low[a0:a1], high[a0:a1],
                                        threshold[a0:a1], local, rho[sel], trials, keys[sel])
     t_live = np.concatenate([[0], np.cumsum(trials[valid[sel]])]).astype(np.int64)
     binned = bin_totals(totals, t_live, units[live], step_req[live])

@@ -99,12 +99,15 @@ def simulate_group(amount, prob, low, high, threshold, rho, trials, key, totals)
             p = prob[i]
             if rho > 0.0 and 0.0 < p < 1.0:
                 p = _phi((threshold[i] - load * z) / rest)
-            if uniform(key, base + 2 + 2 * i) < p:
-                if high[i] > low[i]:
+            won = uniform(key, base + 2 + 2 * i) < p
+            if high[i] > low[i]:
+                if won:
                     total += triangular(low[i], amount[i], high[i],
                                         uniform(key, base + 3 + 2 * i))
-                else:
-                    total += amount[i]
+            else:
+                # A select, not a branch: wins are random, so a branch would be
+                # mispredicted about half the time.
+                total += amount[i] if won else 0.0
         totals[t] = total
 
 
@@ -133,3 +136,28 @@ def group_keys(seeds, words, word_offsets):
     for g in range(n):
         keys[g] = group_key(seeds[g], words[word_offsets[g]:word_offsets[g + 1]])
     return keys
+
+
+def simulate_threads(amount, prob, low, high, threshold, offsets, rho, trials, keys, threads=2):
+    """``simulate_batch`` with the groups split between ``threads`` threads.
+
+    Each group's draws depend only on its key and counters, so the split
+    cannot change a number; the kernel releases the GIL.
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    n_groups = len(offsets) - 1
+    work = np.concatenate([[0], np.cumsum(trials * np.diff(offsets))])
+    if threads < 2 or n_groups < 2 or work[-1] < 1_000_000:
+        return simulate_batch(amount, prob, low, high, threshold, offsets, rho, trials, keys)
+    cuts = np.searchsorted(work, np.linspace(0, work[-1], threads + 1)[1:-1])
+    bounds = [0, *sorted({int(c) for c in cuts if 0 < c < n_groups}), n_groups]
+    jobs = []
+    for g0, g1 in zip(bounds[:-1], bounds[1:]):
+        r0, r1 = offsets[g0], offsets[g1]
+        jobs.append((amount[r0:r1], prob[r0:r1], low[r0:r1], high[r0:r1], threshold[r0:r1],
+                     offsets[g0:g1 + 1] - r0, rho[g0:g1], trials[g0:g1], keys[g0:g1]))
+    with ThreadPoolExecutor(len(jobs)) as pool:
+        results = list(pool.map(lambda job: simulate_batch(*job), jobs))
+    totals = np.concatenate([r[0] for r in results])
+    return totals, np.concatenate([[0], np.cumsum(trials)]).astype(np.int64)
