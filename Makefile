@@ -21,6 +21,7 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
+	$(BIN)/python -m tests.benchmarks.scale
 
 clean:
 	rm -rf $(VENV) .pytest_cache build *.egg-info

@@ -133,13 +133,20 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
         a, p = amount[rows], prob[rows]
         rho_rows = np.full(len(rows), value)
         z, w = nodes(float(value), factor_resolution(a, p, sub_offsets, float(value)))
-        steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z)
+        covers = (np.diff(base.offsets)[groups] - 1) * base.step[groups]
+        steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z,
+                                   base.step[groups], covers)
         base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w))
     return base, status
 
 
-def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z):
-    """A step per group that holds the conditional outcomes at the extreme nodes."""
+def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, base_span):
+    """A step per group that holds the conditional outcomes at the extreme nodes.
+
+    When the independent outcome's lattice already spans every reachable total
+    (small groups), its step is kept, so the correlated outcome tends to the
+    independent one as rho goes to 0.
+    """
     lo_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[-1]), offsets, step_req, bins)
     hi_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[0]), offsets, step_req, bins)
     steps = step_req.copy()
@@ -153,6 +160,10 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z):
         chunk = a[offsets[g]:offsets[g + 1]]
         chance = p[offsets[g]:offsets[g + 1]]
         live = (chunk != 0) & (chance > 0) & (chance < 1)
+        reach = float(np.abs(chunk[live]).sum())
+        if base_step[g] > 0 and base_span[g] >= reach - base_step[g] * (live.sum() + 2):
+            steps[g] = base_step[g]
+            continue
         unit = common_unit(chunk[live])[0] if live.any() else 0.0
         exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // max(int(live.sum()), 1)))
         if unit > 0 and width / unit + 3 <= exact_bins:

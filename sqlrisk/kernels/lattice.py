@@ -46,7 +46,7 @@ DEFAULT_BINS = 1024
 #: is won") where it is, so it may use more bins than an inexact one: up to
 #: EXACT_WORK / n bins for n uncertain deals, and at most EXACT_MAX_BINS.
 EXACT_WORK = 1 << 20
-EXACT_MAX_BINS = 1 << 16
+EXACT_MAX_BINS = 1 << 12
 #: Hard ceiling on the bins of one outcome (32 MiB of mass), whatever the step.
 MAX_BINS = 1 << 22
 #: Ceiling on the bins the automatic lattice may grow to for large groups.
