@@ -188,6 +188,15 @@ def _rows_agree(values, offsets, lengths, live, ref) -> bool:
     rows = np.flatnonzero(live)
     if (lengths[rows] != lengths[ref[rows]]).any():
         return False
+    width = int(lengths[rows[0]]) if len(rows) else 0
+    if (lengths[rows] == width).all() and (offsets[rows] == offsets[rows[0]] + width *
+                                            (rows - rows[0])).all():
+        # Every list has the same length and they sit back to back (the usual case):
+        # compare whole rows as a matrix instead of gathering index ranges.
+        table = values[offsets[rows[0]]:offsets[rows[0]] + width * len(rows)].reshape(-1, width)
+        position = np.full(len(lengths), -1, dtype=np.int64)
+        position[rows] = np.arange(len(rows))
+        return bool((table == table[position[ref[rows]]]).all())
     counts = lengths[rows]
     own = values[_ranges(offsets[rows], counts)]
     theirs = values[_ranges(offsets[ref[rows]], counts)]
