@@ -189,6 +189,8 @@ def _rows_agree(values, offsets, lengths, live, ref) -> bool:
     if (lengths[rows] != lengths[ref[rows]]).any():
         return False
     width = int(lengths[rows[0]]) if len(rows) else 0
+    if (lengths[rows] == width).all() and width == 0:
+        return True  # every list is empty
     if (lengths[rows] == width).all() and (offsets[rows] == offsets[rows[0]] + width *
                                             (rows - rows[0])).all():
         # Every list has the same length and they sit back to back (the usual case):
