@@ -117,6 +117,16 @@ def check_cuts(fn: str, cuts: np.ndarray, offsets: np.ndarray, what: str = "cuts
             f"{fn}: {what} {row} are not strictly increasing; sort them and drop duplicates")
 
 
+def steps_requested(fn: str, values) -> np.ndarray:
+    """A ``step`` column: NULL -> 0 (automatic lattice); anything not > 0 is an error."""
+    step, nulls = _floats(_array(values))
+    bad = ~nulls & ~(step > 0)
+    if bad.any():
+        raise ParameterError(f"{fn}: step {_fmt(step[bad][0])} must be > 0 "
+                             "(or NULL for the automatic lattice)")
+    return np.where(nulls, 0.0, step)
+
+
 def check_levels(fn: str, qs: np.ndarray) -> None:
     bad = ~((qs >= 0.0) & (qs <= 1.0))
     if bad.any():

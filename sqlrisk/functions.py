@@ -113,12 +113,7 @@ def _levels_column(fn: str, values, n: int):
 def outcome_dist(rows, step, correlation):
     fn = "outcome_dist"
     groups = io.read_groups(rows)
-    step_req, step_null = io._floats(io._array(step))
-    bad = ~step_null & ~(step_req > 0)
-    if bad.any():
-        raise ParameterError(f"{fn}: step {io._fmt(step_req[bad][0])} must be > 0 "
-                             "(or NULL for the automatic lattice)")
-    step_req = np.where(step_null, 0.0, step_req)
+    step_req = io.steps_requested(fn, step)
     return io.outcomes_to_arrow(_deal_outcomes(fn, groups, step_req, correlation))
 
 

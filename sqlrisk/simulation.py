@@ -80,12 +80,7 @@ def outcome_sim(rows, trials, seed, correlation, step):
     seeds = np.asarray(seeds_f.fill_null(0).to_numpy(zero_copy_only=False), dtype=np.int64)
     rho = _per_group(fn, correlation, "correlation", 0.0, n)
     check_correlation(fn, rho)
-    step_req = _per_group(fn, step, "step", np.nan, n)
-    bad = ~np.isnan(step_req) & ~(step_req > 0)
-    if bad.any():
-        raise ParameterError(f"{fn}: step {io._fmt(step_req[bad][0])} must be > 0 "
-                             "(or NULL for the automatic lattice)")
-    step_req = np.nan_to_num(step_req, nan=0.0)
+    step_req = io.steps_requested(fn, step)
     amount, prob, low, high, offsets = _sim_deals(fn, groups)
     words = np.stack([amount, prob, low, high], axis=1).view(np.uint64).ravel()
     keys = group_keys(seeds.view(np.uint64), words, offsets * 4)

@@ -12,10 +12,10 @@ supports follow the spread of the partial sums.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
+from .lattice import _window as window
 from .lattice import common_unit
 from .spectral import fft_convolve
 
@@ -114,21 +114,18 @@ def _common_step(steps: list[float], spread: float) -> tuple[float, bool]:
 
 
 def _spread(lattices: list[Outcome]) -> float:
-    """Width that holds all but ~1e-16 of the sum's mass (Bernstein, as in lattice.py)."""
-    var = 0.0
-    dev = 0.0
-    lo = hi = 0.0
+    """Width that holds all but ~1e-16 a side of the sum's mass (``lattice._window``)."""
+    mean = var = dev = lo = hi = 0.0
     for o in lattices:
         x = o.origin + o.step * np.arange(len(o.mass))
         mu = float(np.dot(x, o.mass))
+        mean += mu
         var += float(np.dot((x - mu) ** 2, o.mass))
         dev = max(dev, x[-1] - mu, mu - x[0])
         lo += x[0]
         hi += x[-1]
-    log_tail = math.log(1e16)
-    lm = log_tail * dev / 3.0
-    t = lm + math.sqrt(lm * lm + 2.0 * log_tail * var)
-    return min(hi - lo, 2.0 * t)
+    w_lo, w_hi = window(mean, var, dev, lo, hi)
+    return w_hi - w_lo
 
 
 def _canonical(o: Outcome):
