@@ -147,12 +147,23 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, ba
     (small groups), its step is kept, so the correlated outcome tends to the
     independent one as rho goes to 0.
     """
-    lo_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[-1]), offsets, step_req, bins)
-    hi_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[0]), offsets, step_req, bins)
     steps = step_req.copy()
+    todo = []
     for g in range(len(steps)):
         if steps[g] > 0:
             continue
+        chunk = a[offsets[g]:offsets[g + 1]]
+        live = (chunk != 0) & (p[offsets[g]:offsets[g + 1]] > 0) & (p[offsets[g]:offsets[g + 1]] < 1)
+        reach = float(np.abs(chunk[live]).sum())
+        if base_step[g] > 0 and base_span[g] >= reach - base_step[g] * (live.sum() + 2):
+            steps[g] = base_step[g]
+        else:
+            todo.append(g)
+    if not todo:
+        return steps  # the extreme nodes are only needed to size a new lattice
+    lo_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[-1]), offsets, step_req, bins)
+    hi_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[0]), offsets, step_req, bins)
+    for g in todo:
         low = min(lo_end.origin[g], hi_end.origin[g])
         high = max(lo_end.origin[g] + lo_end.step[g] * (len(lo_end.row(g)) - 1),
                    hi_end.origin[g] + hi_end.step[g] * (len(hi_end.row(g)) - 1))
@@ -160,10 +171,6 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, ba
         chunk = a[offsets[g]:offsets[g + 1]]
         chance = p[offsets[g]:offsets[g + 1]]
         live = (chunk != 0) & (chance > 0) & (chance < 1)
-        reach = float(np.abs(chunk[live]).sum())
-        if base_step[g] > 0 and base_span[g] >= reach - base_step[g] * (live.sum() + 2):
-            steps[g] = base_step[g]
-            continue
         unit = common_unit(chunk[live])[0] if live.any() else 0.0
         exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // max(int(live.sum()), 1)))
         if unit > 0 and width / unit + 3 <= exact_bins:
