@@ -87,14 +87,6 @@ def mixed_binomial_pmf(k, n, p, rho):
                for a, b in ((-np.inf, peak), (peak, np.inf)))
 
 
-SHARP = ("copula.nodes uses a fixed rule (64 Gauss-Hermite nodes, or 16 Gauss-Legendre "
-         "points per panel of width 2 min(1, s)) whatever the group size, but the "
-         "conditional count distribution narrows in z like 1 / sqrt(n), so for large "
-         "groups the mixture is a comb of node binomials: pmf errors 1.8e-5 "
-         "(n=200, p=0.1, rho=0.5), 1.2e-3 (n=300, p=0.2, rho=0.25), 2.0e-3 = 25% of the "
-         "mode (n=1000, p=0.1, rho=0.2, CDF off by 0.011)")
-
-
 # rho <= 0.25 uses 64 Gauss-Hermite nodes, above it composite Gauss-Legendre
 # (kernels/copula.py, GH_MAX_RHO); 0.25 and 0.26 sit on either side of the switch.
 @pytest.mark.parametrize("n, p, rho", [
@@ -142,9 +134,7 @@ def test_large_group_approaches_vasicek_limit(con):
     # loss fraction (about 0.002 at p(z) = 2%, n = 5,000), which moves the CDF
     # by up to ~0.01 in the lower tail. Measured: 0.059 at n = 500, 0.009 at
     # n = 5,000 (a 100,001-point reference quadrature gives the same 0.009 for
-    # the true finite-n gap; the package's node comb, see SHARP, moves single
-    # points by up to 0.007 at n = 5,000), hence the tolerance 0.02 and the
-    # shrinkage check.
+    # the true finite-n gap), hence the tolerance 0.02 and the shrinkage check.
     assert gap_5000 < 0.02
     assert gap_500 > 0.03
     assert gap_5000 < gap_500 / 3
@@ -173,8 +163,8 @@ def test_large_correlated_group_keeps_its_unit_lattice(con):
     independent = con.execute("SELECT outcome_dist(1.0, ?) FROM range(?)", [p, n]).fetchone()[0]
     assert independent["step"] == 1.0 and independent["rounding"] == 0.0
     sd = con.execute(f"SELECT outcome_sd(?::{OUTCOME})", [o]).fetchone()[0]
-    # Source: correlated_count_variance; splitting may add at most 0.1% of the
-    # variance (kernels/lattice.py, SPLIT_VARIANCE).
+    # Source: correlated_count_variance; on the unit lattice nothing is split, so the
+    # variance is exact (the assertion allows 0.1%).
     assert sd ** 2 == pytest.approx(correlated_count_variance(n, p, rho), rel=1e-3)
     assert o["step"] == 1.0 and o["rounding"] == 0.0
 

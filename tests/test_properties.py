@@ -41,7 +41,7 @@ def warm_up():
 # -- strategies ------------------------------------------------------------------
 
 probs = st.one_of(st.sampled_from([0.0, 1.0]), st.floats(0.0, 1.0))
-#: Small whole amounts: the automatic lattice is exact (unit 1, fewer than 2,048 bins).
+#: Small whole amounts: the automatic lattice is exact (unit 1, within the exact budget).
 exact_deals = st.lists(st.tuples(st.integers(-60, 120), probs), min_size=1, max_size=12)
 #: Any amounts: cents, wide ranges, so the automatic lattice is often inexact.
 amounts = st.one_of(st.integers(-60, 120).map(float),
