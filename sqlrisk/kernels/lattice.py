@@ -75,9 +75,29 @@ def canonical_order(amount, prob):
     added in; DuckDB's ``list()`` order is not deterministic under threads, so
     every group is put in this canonical order first.
     """
-    by_prob = np.argsort(prob, kind="mergesort")
-    by_amount = np.argsort(amount[by_prob], kind="mergesort")
-    return by_prob[by_amount]
+    order = np.argsort(amount)
+    # Deals that tie on amount are put in probability order. Deals that tie on
+    # both are interchangeable, so any sort gives the same sequence of deals.
+    n = len(order)
+    i = 0
+    while i < n:
+        j = i + 1
+        while j < n and amount[order[j]] == amount[order[i]]:
+            j += 1
+        if j - i > 16:
+            run = order[i:j].copy()
+            order[i:j] = run[np.argsort(prob[run])]
+        else:
+            for m in range(i + 1, j):  # insertion sort of a short run
+                r = order[m]
+                x = prob[r]
+                t = m - 1
+                while t >= i and prob[order[t]] > x:
+                    order[t + 1] = order[t]
+                    t -= 1
+                order[t + 1] = r
+        i = j
+    return order
 
 
 @njit(cache=True, nogil=True)
