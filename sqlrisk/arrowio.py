@@ -16,6 +16,7 @@ import pyarrow as pa
 
 from .errors import InputDataError, ParameterError
 from .kernels.outcome import OutcomeBatch
+from .kernels.ragged import lists_agree
 
 OUTCOME_FIELDS = ("origin", "step", "mass", "trials", "rounding")
 MASS_TOL = 1e-9
@@ -163,7 +164,7 @@ def per_group_list(fn: str, groups: Groups, name: str, what: str):
     row_group = np.repeat(np.arange(len(groups)), np.diff(groups.offsets))
     ref = first[row_group]
     live = ~nulls
-    if live.any() and not _rows_agree(values, offsets, lengths, live, ref):
+    if live.any() and not lists_agree(values, offsets, live, ref):
         raise ParameterError(
             f"{fn}: {what} differ between rows of one group; give one set of {what} per group")
     pick = np.where(missing, 0, first)
@@ -192,27 +193,6 @@ def _ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
     ends = np.cumsum(counts)
     idx = np.arange(total, dtype=np.int64) - np.repeat(ends - counts, counts)
     return idx + np.repeat(starts, counts)
-
-
-def _rows_agree(values, offsets, lengths, live, ref) -> bool:
-    rows = np.flatnonzero(live)
-    if (lengths[rows] != lengths[ref[rows]]).any():
-        return False
-    width = int(lengths[rows[0]]) if len(rows) else 0
-    if (lengths[rows] == width).all() and width == 0:
-        return True  # every list is empty
-    if (lengths[rows] == width).all() and (offsets[rows] == offsets[rows[0]] + width *
-                                            (rows - rows[0])).all():
-        # Every list has the same length and they sit back to back (the usual case):
-        # compare whole rows as a matrix instead of gathering index ranges.
-        table = values[offsets[rows[0]]:offsets[rows[0]] + width * len(rows)].reshape(-1, width)
-        position = np.full(len(lengths), -1, dtype=np.int64)
-        position[rows] = np.arange(len(rows))
-        return bool((table == table[position[ref[rows]]]).all())
-    counts = lengths[rows]
-    own = values[_ranges(offsets[rows], counts)]
-    theirs = values[_ranges(offsets[ref[rows]], counts)]
-    return bool((own == theirs).all())
 
 
 def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
