@@ -171,6 +171,43 @@ def test_merge_is_commutative_and_associative(con, deals, order):
         assert_same_mass(merged, other)  # common practice: + is commutative and associative
 
 
+#: Stored outcomes as a table might hold them: steps with and without a common
+#: unit, zero bins at either end.
+stored_outcomes = st.builds(
+    lambda origin, step, inner, lead, trail: {
+        "origin": float(origin), "step": step, "trials": 0, "rounding": 0.0,
+        "mass": [0.0] * lead + [m / sum(inner) for m in inner] + [0.0] * trail},
+    st.integers(-1000, 1000), st.sampled_from([1.0, 3.0, 0.7, 1.41421356237, 2.718281828]),
+    st.lists(st.floats(0.01, 1.0), min_size=1, max_size=8),
+    st.integers(0, 3), st.integers(0, 3))
+
+
+def moments(o) -> tuple[float, float]:
+    x = o["origin"] + o["step"] * np.arange(len(o["mass"]))
+    m = np.array(o["mass"])
+    mean = float(np.dot(x, m))
+    return mean, float(np.dot((x - mean) ** 2, m))
+
+
+@SETTINGS
+@given(x=stored_outcomes, y=stored_outcomes)
+def test_adding_two_stored_outcomes_keeps_the_mean_and_bounds_the_spread(con, x, y):
+    """Mean of a sum is the sum of means (linearity of expectation, common practice).
+
+    Moving a lattice onto a coarser step splits each point's mass between its two
+    neighbours keeping its mean, so the mean stays exact and the variance can only
+    grow, by at most step^2 / 4 per outcome moved. (Leading zero bins once shifted
+    a moved outcome down by their number of steps.)
+    """
+    o = one(con, f"SELECT outcome_add(?::{OUTCOME}, ?::{OUTCOME})", [x, y])
+    mean, var = moments(o)
+    (mx, vx), (my, vy) = moments(x), moments(y)
+    scale = max(1.0, abs(mx) + abs(my))
+    assert mean == pytest.approx(mx + my, abs=1e-9 * scale)
+    assert var >= vx + vy - 1e-9 * scale ** 2
+    assert var <= vx + vy + 2 * o["step"] ** 2 / 4 + 1e-9 * scale ** 2
+
+
 @SETTINGS
 @given(deals=exact_deals, booked=st.integers(-10**6, 10**6),
        levels=st.lists(st.floats(0.0, 1.0), min_size=1, max_size=8))

@@ -63,12 +63,14 @@ def respread(o: Outcome, step: float) -> tuple[Outcome, float]:
     size = low[-1] + 2
     mass = (np.bincount(low, o.mass * (1.0 - frac), minlength=size)
             + np.bincount(low + 1, o.mass * frac, minlength=size))
-    return Outcome(o.origin, step, _trim_zeros(mass), o.trials, o.rounding), step
+    first, last = _nonzero_span(mass)
+    return Outcome(o.origin + first * step, step, mass[first:last], o.trials, o.rounding), step
 
 
-def _trim_zeros(mass: np.ndarray) -> np.ndarray:
+def _nonzero_span(mass: np.ndarray) -> tuple[int, int]:
+    """``first, last`` such that ``mass[first:last]`` holds every non-zero bin."""
     nz = np.flatnonzero(mass)
-    return mass[nz[0]:nz[-1] + 1] if len(nz) else mass[:1]
+    return (int(nz[0]), int(nz[-1]) + 1) if len(nz) else (0, 1)
 
 
 def _convolve(x: np.ndarray, y: np.ndarray) -> np.ndarray:
