@@ -68,39 +68,6 @@ TOO_MANY_BINS = 2  # an explicit step would need more than MAX_BINS bins
 
 
 @njit(cache=True, nogil=True)
-def canonical_order(amount, prob):
-    """Indices that sort deals by amount, then probability.
-
-    The recursion's floating-point result depends on the order the deals are
-    added in; DuckDB's ``list()`` order is not deterministic under threads, so
-    every group is put in this canonical order first.
-    """
-    order = np.argsort(amount)
-    # Deals that tie on amount are put in probability order. Deals that tie on
-    # both are interchangeable, so any sort gives the same sequence of deals.
-    n = len(order)
-    i = 0
-    while i < n:
-        j = i + 1
-        while j < n and amount[order[j]] == amount[order[i]]:
-            j += 1
-        if j - i > 16:
-            run = order[i:j].copy()
-            order[i:j] = run[np.argsort(prob[run])]
-        else:
-            for m in range(i + 1, j):  # insertion sort of a short run
-                r = order[m]
-                x = prob[r]
-                t = m - 1
-                while t >= i and prob[order[t]] > x:
-                    order[t + 1] = order[t]
-                    t -= 1
-                order[t + 1] = r
-        i = j
-    return order
-
-
-@njit(cache=True, nogil=True)
 def _gcd(x, y):
     while y:
         x, y = y, x % y

@@ -24,7 +24,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .lattice import EMPTY, OK, canonical_order, plan_group
+from .lattice import EMPTY, OK, plan_group
+from .order import canonical_order
 
 
 @njit(cache=True, nogil=True)
