@@ -14,14 +14,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .combine import Outcome, respread
 from .lattice import DEFAULT_BINS, EMPTY, OK, TOO_MANY_BINS
-from .lattice import _window as window
+from .order import canonical_order
+from .pooled import merge_leaves
 from .recursion import exact_batch
-from .spectral import fft_convolve, fold_group
+from .spectral import fold_group
 
-#: Groups with at least this many uncertain deals whose window cuts their
-#: support are computed as pooled leaves (see ``_pooled``).
+#: Groups of at least this many deals (automatic step) are computed as pooled
+#: leaves (see ``_pooled``).
 POOL_MIN_DEALS = 4096
 #: Threads one batch of groups is split between, and the fewest deals worth it.
 THREADS = min(2, os.cpu_count() or 1)
@@ -106,21 +106,36 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     if step_req is None:
         step_req = np.zeros(n_groups)
     step_req = np.nan_to_num(np.asarray(step_req, dtype=np.float64), nan=0.0)
+    counts = np.diff(offsets)
+    pooled = np.flatnonzero((counts >= POOL_MIN_DEALS) & ~(step_req > 0))
+    if not len(pooled):
+        return _direct(amount, prob, offsets, step_req, bins)
+    # Large groups skip the one-lattice plan: their rows go to _pooled.
+    direct = np.ones(n_groups, dtype=bool)
+    direct[pooled] = False
+    rows = np.repeat(direct, counts)
+    direct_offsets = np.concatenate([[0], np.cumsum(np.where(direct, counts, 0))]).astype(np.int64)
+    batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins)
+    parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins)
+             for g in pooled]
+    batch = splice(batch, pooled, parts)
+    status[pooled] = OK
+    batch.valid[pooled] = True
+    return batch, status
+
+
+def _direct(amount, prob, offsets, step_req, bins):
+    """Every group on its own lattice: the batched recursion, then the folded FFT
+    path for the groups whose window cut their support."""
+    n_groups = len(offsets) - 1
     (status, origin, step, _exact, rounding, linear, lo, mass_offsets, mass,
      k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins))
-    wide = np.flatnonzero((status == OK) & ~linear)
-    pooled = [g for g in wide if a1[g] - a0[g] >= POOL_MIN_DEALS and not (step_req[g] > 0)]
-    for g in wide:
-        if g not in pooled:
-            mass[mass_offsets[g]:mass_offsets[g + 1]] = fold_group(
-                k[a0[g]:a1[g]], frac[a0[g]:a1[g]], p[a0[g]:a1[g]], int(lo[g]),
-                int(mass_offsets[g + 1] - mass_offsets[g]))
+    for g in np.flatnonzero((status == OK) & ~linear):
+        mass[mass_offsets[g]:mass_offsets[g + 1]] = fold_group(
+            k[a0[g]:a1[g]], frac[a0[g]:a1[g]], p[a0[g]:a1[g]], int(lo[g]),
+            int(mass_offsets[g + 1] - mass_offsets[g]))
     batch = OutcomeBatch(origin, step, mass, mass_offsets,
                          np.zeros(n_groups, np.int64), rounding, status == OK)
-    if pooled:
-        rows = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins)
-                for g in pooled]
-        batch = splice(batch, pooled, [(o.origin, o.step, o.mass, o.rounding) for o in rows])
     return batch, status
 
 
@@ -153,7 +168,7 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins):
     )
 
 
-def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int) -> Outcome:
+def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int):
     """A large group as the sum of leaves of LEAF_DEALS deals each.
 
     Putting every deal of a large group on one lattice fine enough for its
@@ -161,56 +176,29 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int) -> Outcome:
     times the amounts). Instead the deals, in canonical order, are dealt out
     round-robin into leaves, so every leaf has a similar mix of sizes and a
     similar step; each leaf gets its own automatic lattice (one batched kernel
-    call). The leaves go onto the coarsest leaf step (splitting a leaf's points
-    adds at most ``step^2 / 4`` of variance per leaf, far below the total's)
-    and are convolved pairwise in a balanced tree; after each product the
-    support is cut to that partial sum's own Bernstein window (mass outside it
-    below 1e-18 a side), which keeps every array about as wide as its spread.
+    call), and ``pooled.merge_leaves`` adds the leaves up. Returns
+    ``(origin, step, mass, rounding)``.
     """
-    order = np.lexsort((prob, amount))
+    order = canonical_order(amount, prob)
     leaves = max(1, len(order) // LEAF_DEALS)
-    leaf_of = np.arange(len(order)) % leaves
-    pick = order[np.argsort(leaf_of, kind="stable")]
-    counts = np.bincount(leaf_of, minlength=leaves)
+    pick = _deal_out(order, leaves)
+    counts = np.bincount(np.arange(len(order)) % leaves, minlength=leaves)
     leaf_offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     a, p = amount[pick], prob[pick]
-    batch, _ = exact_outcomes(a, p, leaf_offsets, bins=bins)
+    batch, _ = _direct(a, p, leaf_offsets, np.zeros(leaves), bins)
     starts = leaf_offsets[:-1]
     uncertain = (p > 0) & (p < 1)
     mean = np.add.reduceat(a * p, starts)
     var = np.add.reduceat(a * a * p * (1 - p), starts)
     largest = np.maximum.reduceat(np.where(uncertain, np.abs(a), 0.0), starts)
-    step = float(batch.step.max())
-    rounding = float(batch.rounding.sum())
-    nodes = []
-    for i in range(leaves):
-        moved, added = respread(Outcome(float(batch.origin[i]), float(batch.step[i]),
-                                        batch.row(i)), step)
-        rounding += added
-        nodes.append((moved.origin, moved.mass, mean[i], var[i], largest[i]))
-    if rounding > 0 and batch.rounding.max() == 0:
-        rounding += step / 2.0
-    while len(nodes) > 1:
-        merged = [_merge_nodes(nodes[i], nodes[i + 1], step) for i in range(0, len(nodes) - 1, 2)]
-        nodes = merged + ([nodes[-1]] if len(nodes) % 2 else [])
-    origin, mass = nodes[0][0], nodes[0][1]
-    return Outcome(origin, step, tidy_mass(mass), 0, rounding)
+    return merge_leaves(batch.origin, batch.step, batch.mass, batch.offsets, batch.rounding,
+                        mean, var, largest, workers=THREADS)
 
 
-def _merge_nodes(x, y, step):
-    """Convolve two partial sums and cut the result to its Bernstein window."""
-    origin = x[0] + y[0]
-    mass = fft_convolve(x[1], y[1]) if len(x[1]) * len(y[1]) > 1 << 15 else np.convolve(x[1], y[1])
-    mean, var, largest = x[2] + y[2], x[3] + y[3], max(x[4], y[4])
-    lo, hi = window(mean, var, largest, -np.inf, np.inf)
-    first = max(0, int(np.floor((lo - origin) / step)) - 1)
-    last = min(len(mass), int(np.ceil((hi - origin) / step)) + 2)
-    return origin + first * step, mass[first:last], mean, var, largest
-
-
-def tidy_mass(mass: np.ndarray) -> np.ndarray:
-    mass = np.maximum(mass, 0.0)
-    return mass / mass.sum()
+def _deal_out(order: np.ndarray, leaves: int) -> np.ndarray:
+    """Deal ``order`` round-robin into ``leaves`` leaves, each leaf's deals in order."""
+    leaf_of = np.arange(len(order)) % leaves
+    return order[np.argsort(leaf_of, kind="stable")]
 
 
 def splice(base: OutcomeBatch, groups, rows) -> OutcomeBatch:
