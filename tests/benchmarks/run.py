@@ -4,6 +4,7 @@ Targets (ratios are medians measured in the same run, on the same machine):
 A  band_odds, 1M deals / 10k owners, 3 cuts      <= 5x the no-op UDF over the same lists; bands within 1e-3
 B  band_odds vs hand-written SQL Monte Carlo     >= 50x faster (1,000 trials, 100k deals / 1k owners)
 C  one group of 1M deals                         <= 3x case A on the same rows; bands within 1e-3
+                                                 of the Edgeworth expansion (cuts at EV, EV +- sd)
 D  outcome_sim, 1,000 trials, vs the same SQL MC >= 3x faster
 E  peak memory                                   A <= 1.5 GB, C <= 2 GB
 F  sqlrisk demo wall time                        warm; first run (numba compiling) reported
