@@ -307,6 +307,64 @@ def test_large_group_on_an_inexact_lattice_within_rounding(con):
     assert mean == pytest.approx(float(amounts @ probs), rel=1e-9)  # source: issue contract
 
 
+# -- very large groups: pooled leaves (4,096 deals and more) -------------------------
+
+def test_pooled_group_of_equal_amounts_matches_scipy_poisson_binom(con):
+    rng = np.random.default_rng(502)
+    probs = rng.uniform(0.0, 1.0, 6_000).round(4)  # scipy's pmf costs O(n^2): ~2 s here
+    probs[:300] = 0.0
+    probs[300:500] = 1.0
+    o = dist(con, [250] * len(probs), probs)
+    assert o["rounding"] == 0.0 and o["step"] == 250.0
+    pmf = stats.poisson_binom(probs).pmf(np.arange(len(probs) + 1))  # source: SciPy >= 1.15
+    k = np.rint(np.array(o["origin"]) / 250 + np.arange(len(o["mass"]))).astype(int)
+    assert o["mass"] == pytest.approx(pmf[k], abs=TOL)
+    assert 1.0 - pmf[k].sum() < 1e-11  # the cut tails hold almost nothing
+
+
+def test_pooled_group_of_small_whole_amounts_matches_the_recursion(con):
+    rng = np.random.default_rng(503)
+    amounts = rng.integers(-2, 6, 10_000)
+    probs = rng.uniform(0.0, 1.0, 10_000).round(3)
+    lo, ref = recursion_reference(amounts.tolist(), probs.tolist())
+    o = dist(con, amounts, probs)
+    assert o["rounding"] == 0.0 and o["step"] == 1.0
+    index = np.rint(o["origin"] + np.arange(len(o["mass"])) - lo).astype(int)
+    assert o["mass"] == pytest.approx(ref[index], abs=TOL)  # source: the recursion above
+    assert 1.0 - ref[index].sum() < 1e-11
+
+
+def edgeworth_cdf(amounts, probs, x):
+    """P(S <= mean + x sd) to order 1/n: the Edgeworth expansion with the deals' exact
+    cumulants (Hall, "The Bootstrap and Edgeworth Expansion", 1992, sec. 2.2; from memory)."""
+    a, p = np.asarray(amounts, float), np.asarray(probs, float)
+    sd = math.sqrt(np.sum(a ** 2 * p * (1 - p)))
+    g1 = np.sum(a ** 3 * p * (1 - p) * (1 - 2 * p)) / sd ** 3
+    g2 = np.sum(a ** 4 * p * (1 - p) * (1 - 6 * p * (1 - p))) / sd ** 4
+    he2, he3, he5 = x ** 2 - 1, x ** 3 - 3 * x, x ** 5 - 10 * x ** 3 + 15 * x
+    return stats.norm.cdf(x) - stats.norm.pdf(x) * (g1 / 6 * he2 + g2 / 24 * he3
+                                                     + g1 ** 2 / 72 * he5)
+
+
+def test_pooled_group_of_varied_amounts_against_the_edgeworth_expansion(con):
+    """Log-normal amounts in cents: the leaves and their sum are on inexact lattices.
+    The bands must stay within the benchmark's 1e-3 of the expansion (whose own error,
+    O(n^-3/2) plus a lattice term of order step / sd, is below 1e-5 here) and the mean exact."""
+    rng = np.random.default_rng(504)
+    amounts = np.round(rng.lognormal(np.log(40_000), 1.0, 50_000), 2)
+    amounts[:2000] *= -0.1  # credit notes
+    probs = rng.uniform(0.02, 0.95, 50_000).round(3)
+    o = dist(con, amounts, probs)
+    assert o["rounding"] > 0.0 and o["trials"] == 0
+    mean = float(amounts @ probs)
+    sd = math.sqrt(float(np.sum(amounts ** 2 * probs * (1 - probs))))
+    x = np.array([-2.0, -1.0, 0.0, 1.0, 2.0])
+    bands = one(con, f"SELECT outcome_bands(?::{OUTCOME}, ?::DOUBLE[])", [o, list(mean + sd * x)])
+    assert np.cumsum(bands)[:-1] == pytest.approx(edgeworth_cdf(amounts, probs, x), abs=1e-3)
+    got_mean = one(con, f"SELECT outcome_mean(?::{OUTCOME})", [o])
+    assert got_mean == pytest.approx(mean, rel=1e-12)  # splitting keeps the mean exactly
+
+
 # -- input types ---------------------------------------------------------------------
 
 AMOUNTS_SQL = "(VALUES (1200, 0.5), (300, 0.25), (-100, 0.7), (45, 1.0), (800, 0.0)) t(a, p)"
