@@ -69,6 +69,9 @@ def check_probabilities(fn: str, prob: np.ndarray) -> None:
     if not bad.any():
         return
     value = prob[np.flatnonzero(bad)[0]]
+    if np.isnan(value):
+        raise InputDataError(f"{fn}: probability nan is not a number (from a failed join or a "
+                             "division by zero? filter the row out or COALESCE it)")
     finite = prob[np.isfinite(prob)]
     hint = "use values in [0, 1]"
     if np.isfinite(value) and len(finite) and finite.min() >= 0 and finite.max() <= 100:
@@ -132,23 +135,30 @@ def check_levels(fn: str, qs: np.ndarray) -> None:
     bad = ~((qs >= 0.0) & (qs <= 1.0))
     if bad.any():
         value = qs[np.flatnonzero(bad)[0]]
-        hint = " (were percentiles given? divide by 100)" if 1 < value <= 100 else ""
-        raise ParameterError(f"{fn}: quantile level {_fmt(value)} is outside [0, 1]{hint}")
+        hint = ("were percentiles given? divide by 100" if 1 < value <= 100
+                else "give levels such as 0.1, 0.5, 0.9")
+        raise ParameterError(f"{fn}: quantile level {_fmt(value)} is outside [0, 1] ({hint})")
 
 
-def list_column(values, n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def list_column(values, n: int, null_error: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """A ``DOUBLE[]`` column: flat values, offsets and the NULL-row mask.
 
-    NULL elements inside a list are an error for the caller to raise; here
-    they come back as NaN.
+    A NULL element inside a list raises ``null_error`` (a ParameterError, or an
+    InputDataError when the text speaks of a malformed outcome).
     """
     arr = _array(values)
     if len(arr) != n:
         raise AssertionError("list column length mismatch")
     offsets = np.asarray(arr.offsets, dtype=np.int64)
     flat = arr.values.slice(offsets[0], offsets[-1] - offsets[0])
-    flat_values, _ = _floats(flat)
+    flat_values, nulls = _floats(flat)
+    if nulls.any():
+        raise (InputDataError if "malformed" in null_error else ParameterError)(null_error)
     return flat_values, offsets - offsets[0], np.asarray(arr.is_null(), dtype=bool)
+
+
+def null_in(fn: str, what: str) -> str:
+    return f"{fn}: {what} contain a NULL; give a list of numbers (or NULL for the whole list)"
 
 
 def per_group_list(fn: str, groups: Groups, name: str, what: str):
@@ -157,7 +167,7 @@ def per_group_list(fn: str, groups: Groups, name: str, what: str):
     The first non-NULL row's list is the group's; a group whose rows disagree
     is an error. Returns flat values, offsets, and a mask of groups without one.
     """
-    values, offsets, nulls = list_column(groups.field(name), groups.offsets[-1])
+    values, offsets, nulls = list_column(groups.field(name), groups.offsets[-1], null_in(fn, what))
     first = _first_live_row(nulls, groups.offsets)
     missing = first < 0
     lengths = np.diff(offsets)
@@ -212,7 +222,8 @@ def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
             f"{_fmt(values[i])}); give one {what} per group")
     bad = ~missing & ~np.isfinite(out)
     if bad.any():
-        raise ParameterError(f"{fn}: {what} {_fmt(out[np.flatnonzero(bad)[0]])} is not a finite total")
+        raise ParameterError(f"{fn}: {what} {_fmt(out[np.flatnonzero(bad)[0]])} is not a finite "
+                             f"total (give a finite {what}, or NULL for a NULL answer)")
     return out, missing
 
 
@@ -234,7 +245,8 @@ def read_outcomes(fn: str, values) -> OutcomeBatch:
     mass_nulls = np.asarray(mass_col.is_null(), dtype=bool)
     if (mass_nulls & valid).any():
         raise InputDataError(f"{fn}: an outcome has a NULL 'mass'; pass outcomes built by outcome_dist")
-    mass, offsets, _ = list_column(mass_col, len(arr))
+    mass, offsets, _ = list_column(mass_col, len(arr), f"{fn}: malformed outcome: mass contains "
+                                   "a NULL; pass outcomes built by outcome_dist")
     trials = np.where(valid, np.nan_to_num(cols["trials"]), 0).astype(np.int64)
     batch = OutcomeBatch(cols["origin"], cols["step"], mass, offsets,
                          trials, cols["rounding"], valid)
@@ -261,13 +273,15 @@ def check_outcomes(fn: str, b: OutcomeBatch) -> None:
                                  "pass outcomes built by outcome_dist")
     if len(b.mass) and not (b.mass >= 0).all():
         raise InputDataError(f"{fn}: malformed outcome: mass contains "
-                             f"{_fmt(b.mass[~(b.mass >= 0)][0])}; masses must be >= 0")
+                             f"{_fmt(b.mass[~(b.mass >= 0)][0])}; masses must be >= 0 (pass "
+                             "outcomes built by outcome_dist)")
     running = np.concatenate([[0.0], np.cumsum(b.mass)])
     sums = np.where(lengths > 0, running[b.offsets[1:]] - running[b.offsets[:-1]], 1.0)
     bad = v & (np.abs(sums - 1.0) > MASS_TOL)
     if bad.any():
         raise InputDataError(f"{fn}: malformed outcome: mass sums to "
-                             f"{_fmt(sums[np.flatnonzero(bad)[0]])}, not 1")
+                             f"{_fmt(sums[np.flatnonzero(bad)[0]])}, not 1; pass outcomes built "
+                             "by outcome_dist")
 
 
 def outcomes_to_arrow(b: OutcomeBatch) -> pa.StructArray:

@@ -95,15 +95,13 @@ def _reach(b: OutcomeBatch, target, keep) -> pa.Array:
 
 
 def _cuts_column(fn: str, values, n: int, what: str = "cuts"):
-    flat, offsets, nulls = io.list_column(values, n)
-    if np.isnan(flat).any():
-        raise ParameterError(f"{fn}: {what} contain a NULL; give a list of totals")
+    flat, offsets, nulls = io.list_column(values, n, io.null_in(fn, what))
     io.check_cuts(fn, flat, offsets, what)
     return flat, offsets, nulls
 
 
 def _levels_column(fn: str, values, n: int):
-    flat, offsets, nulls = io.list_column(values, n)
+    flat, offsets, nulls = io.list_column(values, n, io.null_in(fn, "quantile levels"))
     io.check_levels(fn, flat)
     return flat, offsets, nulls
 
@@ -121,8 +119,6 @@ def band_odds(rows):
     fn = "band_odds"
     groups = io.read_groups(rows)
     cuts, cut_offsets, missing = io.per_group_list(fn, groups, "c", "cuts")
-    if np.isnan(cuts).any():
-        raise ParameterError(f"{fn}: cuts contain a NULL; give a list of totals")
     io.check_cuts(fn, cuts, cut_offsets)
     b = _deal_outcomes(fn, groups)
     return _bands(b, cuts, cut_offsets, b.valid & ~missing)
@@ -178,7 +174,8 @@ def outcome_reach(o, target):
     keep = b.valid & ~nulls
     if not np.isfinite(values[keep]).all():
         raise ParameterError(f"{fn}: target {io._fmt(values[keep][~np.isfinite(values[keep])][0])} "
-                             "is not a finite total")
+                             "is not a finite total (give a finite total, or NULL for a NULL "
+                             "answer)")
     return _reach(b, values, keep)
 
 
@@ -217,7 +214,8 @@ def outcome_shift(o, amount):
     keep = b.valid & ~nulls
     if not np.isfinite(values[keep]).all():
         raise InputDataError(f"{fn}: amount {io._fmt(values[keep][~np.isfinite(values[keep])][0])} "
-                             "is not a finite number")
+                             "is not a finite number (give a finite amount, or NULL to leave the "
+                             "outcome NULL)")
     b.origin = np.where(keep, b.origin + np.where(keep, values, 0.0), b.origin)
     b.valid = keep
     return io.outcomes_to_arrow(b)
@@ -239,7 +237,9 @@ def outcome_histogram(o, bins):
     keep = b.valid & ~nulls
     bad = keep & ~((counts >= 1) & (counts <= MAX_HISTOGRAM_BINS))
     if bad.any():
-        raise ParameterError(f"{fn}: bins {io._fmt(counts[bad][0])} is outside "
+        value = counts[bad][0]
+        shown = str(int(value)) if float(value).is_integer() else io._fmt(value)
+        raise ParameterError(f"{fn}: bins {shown} is outside "
                              f"[1, {MAX_HISTOGRAM_BINS:,}]; ask for 20 to 100 bins for a chart")
     sub = _subset(b, keep)
     lo, hi, prob, offs = readout.histogram_batch(

@@ -53,7 +53,8 @@ def _sim_deals(fn: str, groups: io.Groups):
     for name, values in (("low", low), ("high", high)):
         if not np.isfinite(values).all():
             raise InputDataError(f"{fn}: {name} {io._fmt(values[~np.isfinite(values)][0])} "
-                                 "is not a finite number")
+                                 "is not a finite number (give a finite size, or NULL to keep "
+                                 "the deal's amount fixed on that side)")
     if (low > amount).any():
         i = np.flatnonzero(low > amount)[0]
         raise InputDataError(f"{fn}: low {io._fmt(low[i])} is above the amount "
