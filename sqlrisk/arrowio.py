@@ -20,6 +20,9 @@ from .kernels.ragged import lists_agree
 
 OUTCOME_FIELDS = ("origin", "step", "mass", "trials", "rounding")
 MASS_TOL = 1e-9
+#: Largest and smallest non-zero deal amount (in absolute value) the functions accept.
+AMOUNT_MAX = 1e15
+AMOUNT_MIN = 1e-9
 
 
 def _array(values) -> pa.Array:
@@ -79,13 +82,29 @@ def check_probabilities(fn: str, prob: np.ndarray) -> None:
     raise InputDataError(f"{fn}: probability {_fmt(value)} is outside [0, 1] ({hint})")
 
 
-def check_amounts(fn: str, amount: np.ndarray) -> None:
+def check_amounts(fn: str, amount: np.ndarray, what: str = "amount") -> None:
+    """Finite amounts of a size money can have: |a| <= AMOUNT_MAX, and 0 or |a| >= AMOUNT_MIN.
+
+    The limits keep squares and sums of squares far from overflow and underflow
+    (the lattice's window and step come from the variance).
+    """
     bad = ~np.isfinite(amount)
     if bad.any():
         value = amount[np.flatnonzero(bad)[0]]
         raise InputDataError(
-            f"{fn}: amount {_fmt(value)} is not a finite number "
+            f"{fn}: {what} {_fmt(value)} is not a finite number "
             "(filter it out or COALESCE it to a real amount)")
+    size = np.abs(amount)
+    big = size > AMOUNT_MAX
+    if big.any():
+        raise InputDataError(
+            f"{fn}: {what} {_fmt(amount[np.flatnonzero(big)[0]])} is beyond +/-{AMOUNT_MAX:.0e} "
+            "(a unit mix-up? give amounts in a larger unit, such as thousands)")
+    small = (size > 0) & (size < AMOUNT_MIN)
+    if small.any():
+        raise InputDataError(
+            f"{fn}: {what} {_fmt(amount[np.flatnonzero(small)[0]])} is smaller than {AMOUNT_MIN:.0e} "
+            "but not 0 (round such residues to 0, or give amounts in a smaller unit)")
 
 
 def deals(fn: str, groups: Groups) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

@@ -13,7 +13,7 @@ import numpy as np
 import pyarrow as pa
 
 from . import arrowio as io
-from .errors import InputDataError, ParameterError
+from .errors import ParameterError
 from .kernels import readout
 from .kernels.combine import Outcome, combine
 from .kernels.lattice import MAX_BINS
@@ -212,10 +212,7 @@ def outcome_shift(o, amount):
     b = io.read_outcomes(fn, o)
     values, nulls = io._floats(io._array(amount))
     keep = b.valid & ~nulls
-    if not np.isfinite(values[keep]).all():
-        raise InputDataError(f"{fn}: amount {io._fmt(values[keep][~np.isfinite(values[keep])][0])} "
-                             "is not a finite number (give a finite amount, or NULL to leave the "
-                             "outcome NULL)")
+    io.check_amounts(fn, values[keep])
     b.origin = np.where(keep, b.origin + np.where(keep, values, 0.0), b.origin)
     b.valid = keep
     return io.outcomes_to_arrow(b)

@@ -51,10 +51,7 @@ def _sim_deals(fn: str, groups: io.Groups):
     low = np.where(low_null[keep], amount, low[keep])
     high = np.where(high_null[keep], amount, high[keep])
     for name, values in (("low", low), ("high", high)):
-        if not np.isfinite(values).all():
-            raise InputDataError(f"{fn}: {name} {io._fmt(values[~np.isfinite(values)][0])} "
-                                 "is not a finite number (give a finite size, or NULL to keep "
-                                 "the deal's amount fixed on that side)")
+        io.check_amounts(fn, values, name)
     if (low > amount).any():
         i = np.flatnonzero(low > amount)[0]
         raise InputDataError(f"{fn}: low {io._fmt(low[i])} is above the amount "

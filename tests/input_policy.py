@@ -70,6 +70,14 @@ CASES = [
          f"SELECT outcome_sim(amount, prob) FROM {deals(('-' + INF, 0.5))}",
          "error: outcome_sim: amount -inf is not a finite number (filter it out or COALESCE it to "
          "a real amount)"),
+    Case("an amount beyond 1e15 (a unit mix-up)",
+         f"SELECT band_odds(amount, prob, [0.0]) FROM {deals((2.5e18, 0.5))}",
+         "error: band_odds: amount 2.5e+18 is beyond +/-1e+15 (a unit mix-up? give amounts in a "
+         "larger unit, such as thousands)"),
+    Case("a non-zero amount smaller than 1e-9",
+         f"SELECT outcome_dist(amount, prob) FROM {deals((3e-12, 0.5), (100.0, 0.5))}",
+         "error: outcome_dist: amount 3e-12 is smaller than 1e-09 but not 0 (round such residues "
+         "to 0, or give amounts in a smaller unit)"),
     Case("a negative amount (credit note)",
          f"SELECT band_odds(amount, prob, [0.0]) FROM {deals((-100.0, 0.5))}",
          "[0.5, 0.5]"),
@@ -183,6 +191,10 @@ CASES = [
          f"SELECT outcome_sd({outcome(mass='[0.5, NULL]')})",
          "error: outcome_sd: malformed outcome: mass contains a NULL; pass outcomes built by "
          "outcome_dist"),
+    Case("a non-finite shift",
+         f"SELECT outcome_shift({outcome()}, {NAN})",
+         "error: outcome_shift: amount nan is not a finite number (filter it out or COALESCE it to "
+         "a real amount)"),
     Case("adding an exact and a simulated outcome",
          f"SELECT outcome_add({outcome()}, {outcome(mass='[0.25, 0.75]', trials='1000')}).trials",
          "1000"),
