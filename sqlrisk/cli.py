@@ -85,8 +85,9 @@ def _interactive() -> bool:
     return sys.stderr.isatty()
 
 
-def _open(db: Optional[str], sources: list[str]) -> duckdb.DuckDBPyConnection:
-    con = runner.open_database(db)
+def _open(db: Optional[str], sources: list[str], write: bool = False) -> duckdb.DuckDBPyConnection:
+    # Read-only unless the run writes (--into): reading works on a read-only file or share.
+    con = runner.open_database(db, read_only=not write and db is not None)
     con.execute(f"SET enable_progress_bar = {str(_interactive()).lower()}")
     runner.attach_sources(con, runner.split_pairs(sources, "--source"))
     return con
@@ -128,7 +129,7 @@ def run(
         key = None
         if replace_rows is not None:
             key = tuple(runner.split_pairs([replace_rows], "--replace-rows").items())[0]
-        con = _open(db, source)
+        con = _open(db, source, write=into is not None)
         try:
             result = runner.run_query(con, saved, params, into=into, replace_rows=key)
         finally:
