@@ -4,7 +4,9 @@ Two readings, chosen per outcome:
 
 * **points** (an exact outcome, ``rounding = 0`` and ``trials = 0``): the mass
   sits on the lattice points themselves. ``P(S < c)`` adds the points below
-  ``c``; a point within ``CUT_TOL`` steps of a cut counts as reaching it.
+  ``c``; a point within ``CUT_REL`` of a cut (relative to the size of the
+  numbers involved, so float rounding in sums of amounts cannot put a total
+  that equals a cut below it) counts as reaching it.
 * **bins** (``rounding > 0`` or ``trials > 0``): the lattice total is only
   within ``rounding`` of the true one, so each interior point's mass is read
   as spread evenly over ``[x - step/2, x + step/2]`` and the CDF is linear
@@ -25,7 +27,11 @@ import math
 import numpy as np
 from numba import njit
 
-CUT_TOL = 1e-9
+#: A total within this relative distance of a cut counts as reaching it (~450 ulps:
+#: sums of many amounts in floating point, far below a cent for totals up to 1e10).
+CUT_REL = 1e-13
+#: Most steps the cut tolerance may span (when steps are tiny next to the totals).
+CUT_MAX_STEPS = 1e-3
 Q_TOL = 1e-12
 
 
@@ -33,20 +39,21 @@ Q_TOL = 1e-12
 def prob_below(origin, step, cum, smooth, x):
     """``P(S < x)`` for one outcome with cumulative mass ``cum``."""
     m = len(cum)
+    scale = max(1.0, abs(x), abs(origin))
     if m == 1 or step == 0.0:
-        # A single total: compare with a relative tolerance for float sums.
-        return cum[m - 1] if origin < x - Q_TOL * max(1.0, abs(x)) else 0.0
+        return cum[m - 1] if origin < x - CUT_REL * scale else 0.0
+    tol = min(CUT_REL * scale / step, CUT_MAX_STEPS)
     u = (x - origin) / step
     if not smooth or m == 2:
-        c = math.ceil(u - CUT_TOL)
+        c = math.ceil(u - tol)
         if c <= 0:
             return 0.0
         if c >= m:
             return cum[m - 1]
         return cum[c - 1]
-    if u <= CUT_TOL:
+    if u <= tol:
         return 0.0
-    if u > m - 1 + CUT_TOL:
+    if u > m - 1 + tol:
         return cum[m - 1]
     if u >= m - 1.5:
         return cum[m - 2]
