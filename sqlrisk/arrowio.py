@@ -23,6 +23,8 @@ MASS_TOL = 1e-9
 #: Largest and smallest non-zero deal amount (in absolute value) the functions accept.
 AMOUNT_MAX = 1e15
 AMOUNT_MIN = 1e-9
+#: Totals an outcome may hold (their squares stay far from overflow).
+OUTCOME_MAX = 1e150
 
 
 def _array(values) -> pa.Array:
@@ -276,15 +278,20 @@ def read_outcomes(fn: str, values) -> OutcomeBatch:
 def check_outcomes(fn: str, b: OutcomeBatch) -> None:
     v = b.valid
     lengths = np.diff(b.offsets)
+    with np.errstate(over="ignore", invalid="ignore"):
+        top = b.origin + b.step * np.maximum(lengths - 1, 0)
     problems = [
         (~np.isfinite(b.origin) & v, "origin {} is not finite"),
         ((~np.isfinite(b.step) | (b.step < 0)) & v, "step {} is not a finite value >= 0"),
+        ((np.abs(b.origin) > OUTCOME_MAX) & v, f"origin {{}} is beyond +/-{OUTCOME_MAX:.0e}"),
+        (~(np.abs(top) <= OUTCOME_MAX) & v, f"its largest total {{}} is beyond +/-{OUTCOME_MAX:.0e}"),
         ((b.step == 0) & (lengths > 1) & v, "step {} with more than one mass point"),
         ((lengths == 0) & v, "mass is empty (length {})"),
-        ((~np.isfinite(b.rounding) | (b.rounding < 0)) & v, "rounding {} is not >= 0"),
+        ((~np.isfinite(b.rounding) | (b.rounding < 0) | (b.rounding > OUTCOME_MAX)) & v,
+         f"rounding {{}} is not in [0, {OUTCOME_MAX:.0e}]"),
         ((b.trials < 0) & v, "trials {} is negative"),
     ]
-    fields = [b.origin, b.step, b.step, lengths, b.rounding, b.trials]
+    fields = [b.origin, b.step, b.origin, top, b.step, lengths, b.rounding, b.trials]
     for (bad, text), field in zip(problems, fields):
         if bad.any():
             value = field[np.flatnonzero(bad)[0]]
