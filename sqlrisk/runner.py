@@ -79,8 +79,9 @@ def attach_sources(con: duckdb.DuckDBPyConnection, sources: dict[str, str]) -> N
             con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT * FROM {reader}({literal})")
             con.execute(f"SELECT * FROM {view} LIMIT 0").fetchall()
         except duckdb.Error as exc:
+            first = str(exc).split("\nLINE ")[0]  # not the internal view's SQL
             raise InputDataError(f"run: source {name}={path!r} cannot be read as "
-                                 f"{reader[5:]}: {' '.join(str(exc).split())[:200]}") from None
+                                 f"{reader[5:]}: {' '.join(first.split())[:200]}") from None
 
 
 def query_text(query: queries.SavedQuery) -> str:
@@ -126,6 +127,9 @@ def run_query(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery, params:
         con.execute(f"DROP TABLE {RESULT}")
         con.execute("COMMIT")
     except BaseException:
-        con.execute("ROLLBACK")
+        try:
+            con.execute("ROLLBACK")
+        except duckdb.TransactionException:
+            pass  # a failed COMMIT has already ended the transaction: report its error
         raise
     return RunResult(table, written, into)
