@@ -184,6 +184,10 @@ CASES = [
          f"SELECT outcome_quantiles({outcome(step='0.0')}, [0.5])",
          "error: outcome_quantiles: malformed outcome: step 0.0 with more than one mass point; "
          "pass outcomes built by outcome_dist"),
+    Case("an outcome whose totals exceed 1e150",
+         f"SELECT outcome_quantiles({outcome(step='1e300')}, [0.5])",
+         "error: outcome_quantiles: malformed outcome: its largest total 1e+300 is beyond +/-1e+150; "
+         "pass outcomes built by outcome_dist"),
     Case("an outcome with a NULL field",
          f"SELECT outcome_mean({outcome(origin='NULL')})",
          "error: outcome_mean: an outcome has a NULL 'origin'; pass outcomes built by outcome_dist"),

@@ -73,6 +73,28 @@ def assert_same_mass(o1, o2):
         assert m1.get(total, 0.0) == pytest.approx(m2.get(total, 0.0), abs=TOL), total
 
 
+# -- brute force: every win/loss scenario ---------------------------------------------
+
+@SETTINGS
+@given(deals=exact_deals, cuts=st.lists(st.integers(-700, 1500), max_size=5, unique=True))
+def test_exact_outcome_equals_brute_force_over_every_scenario(con, deals, cuts):
+    """Up to 12 deals (whole amounts, negatives included): the outcome's masses, and the
+    band odds read off it, equal the sums over all 2^n win/loss scenarios (common practice)."""
+    from test_reference_exact import brute_force, ref_bands
+
+    amounts, probs = columns(deals)
+    ref = brute_force(amounts, probs)
+    o = dist(con, deals)
+    assert o["rounding"] == 0.0 and o["trials"] == 0
+    got = mass_by_total(o)
+    for total in set(got) | set(ref):
+        assert got.get(total, 0.0) == pytest.approx(ref.get(total, 0.0), abs=TOL), total
+    cuts = sorted(float(c) for c in cuts)
+    bands = one(con, f"SELECT band_odds(amount, prob, ?::DOUBLE[]) FROM {DEALS}",
+                [cuts, amounts, probs])
+    assert bands == pytest.approx(ref_bands(ref, cuts), abs=TOL)
+
+
 # -- mass, bands, quantiles --------------------------------------------------------
 
 @SETTINGS
