@@ -97,13 +97,14 @@ def bands_batch(origin, step, mass, offsets, smooth, cuts, cut_offsets):
     pos = 0
     for g in range(n):
         cum = np.cumsum(mass[offsets[g]:offsets[g + 1]])
+        total = min(cum[-1], 1.0)  # a stored mass may sum to 1 + a few ulps
         prev = 0.0
         for c in range(cut_offsets[g], cut_offsets[g + 1]):
-            below = prob_below(origin[g], step[g], cum, smooth[g], cuts[c])
+            below = min(prob_below(origin[g], step[g], cum, smooth[g], cuts[c]), total)
             out[pos] = max(below - prev, 0.0)
             prev = max(prev, below)
             pos += 1
-        out[pos] = max(cum[-1] - prev, 0.0)
+        out[pos] = max(total - prev, 0.0)
         pos += 1
     return out
 
