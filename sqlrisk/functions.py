@@ -271,3 +271,43 @@ def _pack(results: list[Outcome | None]) -> OutcomeBatch:
                         np.array([r is not None for r in results], dtype=bool)) if n else \
         OutcomeBatch(*(np.zeros(0) for _ in range(3)), np.zeros(1, np.int64),
                      np.zeros(0, np.int64), np.zeros(0), np.zeros(0, bool))
+
+
+# -- which deals move the odds ------------------------------------------------
+
+SWING_FIELDS = ("i", "reach_if_won", "reach_if_lost", "swing")
+
+
+def deal_swing(rows):
+    """Per group: for each usable deal, its 1-based position in the group's list and
+    the reach if won / if lost (the macro turns the position back into the deal id)."""
+    from .kernels.swing import swings
+
+    fn = "deal_swing"
+    groups = io.read_groups(rows)
+    target, missing = io.per_group_scalar(fn, groups, "t", "target")
+    amount, a_null = io._floats(groups.field("a"))
+    prob, p_null = io._floats(groups.field("p"))
+    usable = ~(a_null | p_null)
+    io.check_amounts(fn, amount[usable])
+    io.check_probabilities(fn, prob[usable])
+    parts, lengths, keep = [], np.zeros(len(groups), np.int64), np.zeros(len(groups), bool)
+    for g in range(len(groups)):
+        start, stop = groups.offsets[g], groups.offsets[g + 1]
+        live = np.flatnonzero(usable[start:stop])
+        if missing[g] or groups.null_group[g] or not len(live):
+            continue
+        result = swings(amount[start + live], prob[start + live], float(target[g]))
+        if result is None:
+            raise ParameterError(
+                f"{fn}: a group of {len(live):,} deals spreads too wide for exact swings; "
+                "compute swings per owner or per region")
+        won, lost = result
+        parts.append(np.column_stack([live + 1.0, won, lost, won - lost]))
+        lengths[g], keep[g] = len(live), True
+    table = np.concatenate(parts) if parts else np.zeros((0, 4))
+    offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int32)
+    items = pa.StructArray.from_arrays(
+        [pa.array(table[:, 0].astype(np.int64)), *(pa.array(table[:, c]) for c in (1, 2, 3))],
+        names=list(SWING_FIELDS))
+    return pa.ListArray.from_arrays(pa.array(offsets), items, mask=pa.array(~keep))
