@@ -1,9 +1,10 @@
-"""From a query result with an outcome column to chart files.
+"""From a query result with an outcome column (or a reliability table) to chart files.
 
-The numbers on a chart come from sqlrisk's own SQL functions
+The numbers on an outcome chart come from sqlrisk's own SQL functions
 (``outcome_histogram``, ``outcome_bands``, ``outcome_bands_ci``,
 ``outcome_mean``) run on the result rows, so a picture shows exactly what a
-query would return.
+query would return. A reliability diagram plots the bins of a result shaped
+like ``sql/reliability_table.sql`` as they are.
 """
 
 from __future__ import annotations
@@ -22,13 +23,23 @@ HISTOGRAM_BINS = 60
 ROWS = "__sqlrisk_chart_rows"
 
 
-def outcome_column(table: pa.Table) -> str:
+def find_outcome_column(table: pa.Table) -> str | None:
     for name, typ in zip(table.column_names, table.schema.types):
         if pa.types.is_struct(typ) and {typ.field(i).name for i in range(typ.num_fields)} >= set(
                 OUTCOME_FIELDS):
             return name
-    raise ParameterError("chart: the query returns no outcome column (a STRUCT like "
-                         "outcome_dist's); select one, e.g. outcome_dist(amount, win_prob) AS outcome")
+    return None
+
+
+def outcome_column(table: pa.Table) -> str:
+    column = find_outcome_column(table)
+    if column is None:
+        raise ParameterError(
+            "chart: the query returns no outcome column (a STRUCT like outcome_dist's) and no "
+            f"reliability columns ({', '.join(RELIABILITY_COLUMNS)}); select an outcome, e.g. "
+            "outcome_dist(amount, win_prob) AS outcome, or the bins of a reliability table "
+            "(see sql/reliability_table.sql)")
+    return column
 
 
 def label_column(table: pa.Table, skip: str) -> str | None:
@@ -49,7 +60,13 @@ def _note(rounding: float, trials: int) -> str:
 
 def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
               where: str | None = None, cuts: list[float] | None = None) -> list[Path]:
-    """One chart per row of ``table`` (after ``where``); returns the files written."""
+    """One chart per row of ``table`` (after ``where``); returns the files written.
+
+    A result without an outcome column but with the reliability table's columns
+    is drawn as a reliability diagram instead (see ``draw_reliability``).
+    """
+    if find_outcome_column(table) is None and is_reliability_table(table):
+        return draw_reliability(con, table, out, where=where, cuts=cuts)
     column = outcome_column(table)
     label = label_column(table, column)
     con.register(ROWS, table)
@@ -79,12 +96,85 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
             mean=mean,
             note=_note(o["rounding"], o["trials"]),
         )
-        path = out if len(rows) == 1 else out.with_name(f"{out.stem}-{i}{out.suffix}")
-        if path.suffix.lower() == ".png":
-            chart.to_png(spec, str(path))
-        else:
-            path.write_text(chart.to_svg(spec))
-        written.append(path)
+        written.append(_save(spec, _numbered(out, i, len(rows)), chart.to_svg, chart.to_png))
+    return written
+
+
+def _numbered(out: Path, i: int, count: int) -> Path:
+    """``out`` for a single chart; FILE-1.svg, FILE-2.svg, ... for several."""
+    return out if count == 1 else out.with_name(f"{out.stem}-{i}{out.suffix}")
+
+
+def _save(spec, path: Path, svg, png) -> Path:
+    if path.suffix.lower() == ".png":
+        png(spec, str(path))
+    else:
+        path.write_text(svg(spec))
+    return path
+
+
+# -- reliability diagrams ----------------------------------------------------------
+
+RELIABILITY_COLUMNS = ("stated_mean", "observed_rate", "deals")
+INTERVAL_COLUMNS = ("wilson_lo", "wilson_hi")
+
+
+def is_reliability_table(table: pa.Table) -> bool:
+    """True when ``table`` has the reliability table's columns (see sql/reliability_table.sql)."""
+    return set(RELIABILITY_COLUMNS) <= set(table.column_names)
+
+
+def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
+                     where: str | None = None, cuts: list[float] | None = None) -> list[Path]:
+    """A reliability diagram of the rows of ``table`` (after ``where``); one per label.
+
+    Rows are bins: ``stated_mean`` (x), ``observed_rate`` (y) and ``deals``
+    (circle size), with ``wilson_lo``/``wilson_hi`` as whiskers when present.
+    Bins without deals are left out. A text column, if any, splits the rows
+    into one diagram per value (e.g. one per stage).
+    """
+    if cuts is not None:
+        raise ParameterError("chart: --cuts marks band cuts on an outcome chart; a reliability "
+                             "diagram has none (leave --cuts out)")
+    label = label_column(table, "")
+    has_ci = set(INTERVAL_COLUMNS) <= set(table.column_names)
+    con.register(ROWS, table)
+    try:
+        sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
+               "stated_mean::DOUBLE, observed_rate::DOUBLE, deals::BIGINT, "
+               + ("wilson_lo::DOUBLE, wilson_hi::DOUBLE " if has_ci else "NULL, NULL ")
+               + f"FROM {ROWS} WHERE deals > 0 AND stated_mean IS NOT NULL "
+               "AND observed_rate IS NOT NULL" + (f" AND ({where})" if where else "")
+               + " ORDER BY label, stated_mean")
+        rows = con.execute(sql).fetchall()
+    finally:
+        con.unregister(ROWS)
+    if not rows:
+        raise ParameterError("chart: no bin with deals to draw"
+                             + (f" matches --where {where!r}" if where else ""))
+    for name, value in (("stated_mean", min(r[1] for r in rows)),
+                        ("stated_mean", max(r[1] for r in rows)),
+                        ("observed_rate", min(r[2] for r in rows)),
+                        ("observed_rate", max(r[2] for r in rows))):
+        if not 0.0 <= value <= 1.0:
+            raise ParameterError(f"chart: {name} {value!r} is outside [0, 1]; a reliability "
+                                 "diagram plots probabilities (were percentages given?)")
+    labels = list(dict.fromkeys(r[0] for r in rows))
+    written = []
+    for i, name in enumerate(labels, start=1):
+        mine = [r for r in rows if r[0] == name]
+        deals = sum(r[3] for r in mine)
+        spec = chart.ReliabilityChart(
+            title=name or "Stated win probability against observed win rate",
+            points=[(r[1], r[2], r[3]) for r in mine],
+            intervals=[(r[4], r[5]) for r in mine] if has_ci and all(
+                r[4] is not None and r[5] is not None for r in mine) else None,
+            note=(f"{deals:,} closed deals in {len(mine)} bins; circle area in proportion to deals"
+                  + ("; whiskers: 95% Wilson intervals" if has_ci else "") + ".\n"
+                  "Dashed line: observed = stated (a perfectly calibrated forecast)."),
+        )
+        written.append(_save(spec, _numbered(out, i, len(labels)), chart.reliability_svg,
+                             chart.reliability_png))
     return written
 
 

@@ -159,12 +159,17 @@ def chart(
     source: list[str] = typer.Option([], "--source", help=SOURCE_HELP),
     param: list[str] = typer.Option([], "--param", "-p", help=PARAM_HELP),
 ) -> None:
-    """Draw the distribution of the total for each row of a query that returns an outcome.
+    """Draw the distribution of the total for each row of a query that returns an outcome,
+    or a reliability diagram for a query that returns bins like reliability_table.
 
-    Each cut is a vertical line with its band's probability written on the band; the
-    expected value is marked.
+    On an outcome chart each cut is a vertical line with its band's probability written on
+    the band; the expected value is marked. A result with columns stated_mean, observed_rate
+    and deals (and wilson_lo, wilson_hi as whiskers) is drawn as a reliability diagram:
+    one circle per bin, sized by its deals, against the diagonal of perfect calibration.
 
-    Example: sqlrisk chart region_outcomes --where "region = 'Tidewater Bay'" --output tidewater.svg
+    Examples:
+      sqlrisk chart region_outcomes --where "region = 'Tidewater Bay'" --output tidewater.svg
+      sqlrisk chart reliability_table --db forecast.duckdb --output reliability.svg
     """
     if out.suffix.lower() not in (".svg", ".png"):
         raise typer.BadParameter("the picture must be a .svg or .png file", param_hint="--output")

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import duckdb
 
+from . import calibration as cal
 from . import functions as f
 from . import simulation as sim
 
@@ -45,8 +46,23 @@ UDFS = {
     "outcome_add": (f.outcome_add, [OUTCOME_SQL, OUTCOME_SQL], OUTCOME_SQL),
     "outcome_histogram": (f.outcome_histogram, [OUTCOME_SQL, "BIGINT"],
                           "STRUCT(lo DOUBLE, hi DOUBLE, prob DOUBLE)[]"),
+    "_sqlrisk_calibration_map": (cal.calibration_map, [cal.CLOSED_SQL], cal.MAP_SQL),
+    "_sqlrisk_brier_score": (cal.brier_score, [cal.CLOSED_SQL], "DOUBLE"),
+    "_sqlrisk_brier_parts": (cal.brier_parts, [cal.CLOSED_SQL, "DOUBLE"], cal.PARTS_SQL),
+    "_sqlrisk_apply_calibration": (cal.apply_calibration, [cal.MAP_SQL, "DOUBLE"], "DOUBLE"),
+    "_sqlrisk_deal_swing": (f.deal_swing, [_DEALS.format(extra=", t DOUBLE")],
+                            "STRUCT(i BIGINT, reach_if_won DOUBLE, reach_if_lost DOUBLE, "
+                            "swing DOUBLE)[]"),
 }
 
+
+# deal_swing: the deal ids ride along in the list (any type) and are put back by position.
+_SWING_LIST = ("list({'id': deal_id, 'a': amount::DOUBLE, 'p': prob::DOUBLE, "
+               "'t': target::DOUBLE})")
+_SWING_MACRO = (f"list_transform(_sqlrisk_deal_swing(list_transform({_SWING_LIST}, "
+                "lambda x: {'a': x.a, 'p': x.p, 't': x.t})), "
+                f"lambda s: {{'deal_id': {_SWING_LIST}[s.i].id, 'reach_if_won': s.reach_if_won, "
+                "'reach_if_lost': s.reach_if_lost, 'swing': s.swing})")
 
 MACROS = {
     "outcome_dist": ("amount, prob, step := NULL, correlation := 0.0",
@@ -69,6 +85,17 @@ MACROS = {
                         "_sqlrisk_total_quantiles(list({'a': amount::DOUBLE, 'p': prob::DOUBLE, "
                         "'q': qs::DOUBLE[]}))"),
     "outcome_merge": ("o", f"_sqlrisk_outcome_merge(list(o::{OUTCOME_SQL}))"),
+    # won is cast to DOUBLE, not INTEGER, so that a 0.5 is refused rather than rounded.
+    "calibration_map": ("prob, won", "_sqlrisk_calibration_map(list({'p': prob::DOUBLE, "
+                        "'w': won::DOUBLE}))"),
+    "brier_score": ("prob, won", "_sqlrisk_brier_score(list({'p': prob::DOUBLE, "
+                    "'w': won::DOUBLE}))"),
+    "brier_parts": ("prob, won, bins := 10", "_sqlrisk_brier_parts(list({'p': prob::DOUBLE, "
+                    "'w': won::DOUBLE}), bins::DOUBLE)"),
+    # A scalar; the macro's cast lets a hand-written map ({'prob': [...], 'rate': [...]}) in.
+    "apply_calibration": ("map, prob",
+                          f"_sqlrisk_apply_calibration(map::{cal.MAP_SQL}, prob::DOUBLE)"),
+    "deal_swing": ("deal_id, amount, prob, target", _SWING_MACRO),
 }
 
 
