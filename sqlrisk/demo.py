@@ -9,9 +9,12 @@ import duckdb
 from . import charting, queries, render, runner
 
 SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals")
-BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more")
+BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more",
+                "reach_now", "reach_if_won", "reach_if_lost", "swing", "win_prob",
+                "below_floor_stated", "below_floor_calibrated", "stretch_or_more_stated",
+                "stretch_or_more_calibrated")
 MONEY_COLUMNS = ("expected_value", "floor", "target", "stretch", "rounding", "sd",
-                 "p10", "p50", "p90")
+                 "p10", "p50", "p90", "cut", "amount", "expected_stated", "expected_calibrated")
 
 
 def load_seeds(con: duckdb.DuckDBPyConnection, directory: Path | None = None) -> None:
@@ -22,11 +25,17 @@ def load_seeds(con: duckdb.DuckDBPyConnection, directory: Path | None = None) ->
                     [str(directory / f"{name}.csv")])
 
 
-def _section(con, name: str, title: str, columns: list[str] | None = None) -> str:
+def _section(con, name: str, title: str, columns: list[str] | None = None,
+             only: tuple[str, object] | None = None, limit: int | None = None) -> str:
+    """A saved query's result as a text table; ``only = (column, value)`` keeps those rows."""
     query = queries.find(name)
     rel = con.execute(query.sql, queries.bind(query, {}))
     headers = [d[0] for d in rel.description]
     rows = rel.fetchall()
+    if only:
+        rows = [r for r in rows if r[headers.index(only[0])] == only[1]]
+    if limit:
+        rows = rows[:limit]
     if columns:
         keep = [headers.index(c) for c in columns]
         headers = columns
@@ -39,6 +48,7 @@ def _section(con, name: str, title: str, columns: list[str] | None = None) -> st
 
 
 CHART_REGION = "Tidewater Bay"
+SWING_OWNER = "own_032"
 
 
 def write_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
@@ -51,12 +61,22 @@ def write_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
                               where=f"region = '{CHART_REGION}'")[0]
 
 
+def write_reliability_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
+    """Reliability diagram of the closed deals' stated probabilities (sql/reliability_table.sql)."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    result = runner.run_query(con, queries.find("reliability_table"), {})
+    return charting.draw_rows(con, result.table, out_dir / "demo-reliability.svg")[0]
+
+
 def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str:
     """Load the seeds into ``con``, write the demo chart into ``out_dir``, return the report."""
     load_seeds(con)
     chart_path = write_chart(con, out_dir or Path("out"))
+    reliability_path = write_reliability_chart(con, out_dir or Path("out"))
     counts = con.execute(
         "SELECT count(*), count(DISTINCT owner_id), count(DISTINCT region) FROM pipeline").fetchall()[0]
+    owner, owner_name = con.execute(
+        "SELECT owner_id, owner_name FROM owners WHERE owner_id = ?", [SWING_OWNER]).fetchall()[0]
     parts = [
         "sqlrisk demo: Brindlewick Software (an invented company), open pipeline for 2027-Q1",
         f"{counts[0]:,} open deals, {counts[1]} owners, {counts[2]} regions, loaded from seeds/.",
@@ -68,15 +88,33 @@ def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str
         "",
         _section(con, "region_rollup", "Region and company roll-up of the owner outcomes"),
         "",
+        _section(con, "top_swing_deals",
+                 f"Which deals move {owner_name}'s odds of reaching the next band cut most "
+                 "(deal_swing)",
+                 ["deal_id", "stage", "amount", "win_prob", "cut_name", "reach_now",
+                  "reach_if_won", "reach_if_lost", "swing"], only=("owner_id", owner)),
+        "",
+        _section(con, "stated_vs_calibrated",
+                 "Band odds from the stated probabilities and from probabilities calibrated on "
+                 "2026's closed deals (first 8 owners)",
+                 ["owner_name", "expected_stated", "expected_calibrated", "below_floor_stated",
+                  "below_floor_calibrated", "stretch_or_more_stated",
+                  "stretch_or_more_calibrated"], limit=8),
+        "",
         f"Chart of {CHART_REGION}'s won total with its quota bands: {chart_path}",
         "(from sql/region_outcomes.sql, drawn by 'sqlrisk chart region_outcomes')",
+        f"Reliability diagram of the closed deals' stated probabilities: {reliability_path}",
+        "(from sql/reliability_table.sql, drawn by 'sqlrisk chart reliability_table')",
         "",
         "How to read this: expected_value is the weighted sum SUM(amount * win_prob); the band",
         "columns are the probabilities of the won total landing in each band, with the stated win",
         "probabilities taken at face value and deals independent. They are computed on a lattice",
         "of totals: 'rounding' is a worst-case bound (in currency) on how far a lattice total may",
         "sit from the true one, and 0 when the odds are exact to 1e-12; on the benchmark groups the",
-        "band probabilities were within 1e-3 of exact ones.",
+        "band probabilities were within 1e-3 of exact ones. reach_if_won / reach_if_lost are the",
+        "chance of reaching the cut with that deal won / lost; swing is their gap. Calibrated odds",
+        "replace each stated probability by the win rate closed deals with that stated probability",
+        "and stage actually had (isotonic regression); they assume the future closes like the past.",
         "The odds estimate; they do not decide anyone's pay or job.",
     ]
     return "\n".join(parts)

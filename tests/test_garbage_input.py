@@ -203,3 +203,54 @@ def test_the_checks_themselves_can_fail(con):
         bands_ok(1)([math.nan, 1.0])
     with pytest.raises(AssertionError):
         call(con, "band_odds", "SELECT error('ValueError: band_odds: not ours')", [], bands_ok(0))
+
+
+# -- deal swings and calibration ---------------------------------------------------------
+
+def swings_ok(value):
+    if value is None:
+        return
+    for item in value:
+        assert valid_probabilities([item["reach_if_won"], item["reach_if_lost"]])
+        assert item["swing"] == item["reach_if_won"] - item["reach_if_lost"]
+
+
+@SETTINGS
+@given(rows=deal_rows, target=maybe)
+def test_deal_swing(con, rows, target):
+    ids = list(range(len(rows)))
+    call(con, "deal_swing",
+         "SELECT deal_swing(i, amount, prob, ?::DOUBLE) FROM (SELECT unnest(?::BIGINT[]) AS i, "
+         "unnest(?::DOUBLE[]) AS amount, unnest(?::DOUBLE[]) AS prob)",
+         [target, ids, *columns(rows)], swings_ok)
+
+
+closed_rows = st.lists(st.tuples(probability, st.one_of(st.none(), st.sampled_from(
+    [0.0, 1.0, 0.5, 2.0, -1.0, math.nan]))), max_size=12)
+CLOSED = "(SELECT unnest(?::DOUBLE[]) AS prob, unnest(?::DOUBLE[]) AS won)"
+
+
+@SETTINGS
+@given(rows=closed_rows, bins=st.one_of(st.none(), st.integers(-2, 1200), special), x=probability)
+def test_calibration_functions(con, rows, bins, x):
+    params = [[p for p, _ in rows], [w for _, w in rows]]
+
+    def map_ok(m):
+        if m is None:
+            return
+        assert valid_probabilities(m["prob"]) and valid_probabilities(m["rate"])
+        assert list(m["prob"]) == sorted(set(m["prob"])) and m["deals"] >= 1
+        call(con, "apply_calibration", "SELECT apply_calibration(?::STRUCT(prob DOUBLE[], "
+             "rate DOUBLE[], deals BIGINT), ?::DOUBLE)", [m, x], probability_or_null)
+
+    def parts_ok(parts):
+        if parts is None:
+            return
+        assert all(math.isfinite(parts[k]) and parts[k] >= 0
+                   for k in ("reliability", "resolution", "uncertainty"))
+
+    call(con, "calibration_map", f"SELECT calibration_map(prob, won) FROM {CLOSED}", params, map_ok)
+    call(con, "brier_score", f"SELECT brier_score(prob, won) FROM {CLOSED}", params,
+         probability_or_null)
+    call(con, "brier_parts", f"SELECT brier_parts(prob, won, bins := ?::DOUBLE) FROM {CLOSED}",
+         [bins, *params], parts_ok)
