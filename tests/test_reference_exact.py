@@ -309,16 +309,21 @@ def test_large_group_on_an_inexact_lattice_within_rounding(con):
 
 # -- very large groups: pooled leaves (4,096 deals and more) -------------------------
 
-def test_pooled_group_of_equal_amounts_matches_scipy_poisson_binom(con):
+@pytest.mark.parametrize("step", [None, 250.0, 125.0])
+def test_pooled_group_of_equal_amounts_matches_scipy_poisson_binom(con, step):
     rng = np.random.default_rng(502)
     probs = rng.uniform(0.0, 1.0, 6_000).round(4)  # scipy's pmf costs O(n^2): ~2 s here
     probs[:300] = 0.0
     probs[300:500] = 1.0
-    o = dist(con, [250] * len(probs), probs)
-    assert o["rounding"] == 0.0 and o["step"] == 250.0
+    o = dist(con, [250] * len(probs), probs, step)
+    assert o["rounding"] == 0.0 and o["step"] == (step or 250.0)
+    totals = o["origin"] + o["step"] * np.arange(len(o["mass"]))
+    mass = np.array(o["mass"])
+    on_250 = np.abs(totals / 250 - np.rint(totals / 250)) < 1e-9
+    assert (mass[~on_250] == 0).all()  # a finer explicit step leaves the odd points empty
     pmf = stats.poisson_binom(probs).pmf(np.arange(len(probs) + 1))  # source: SciPy >= 1.15
-    k = np.rint(np.array(o["origin"]) / 250 + np.arange(len(o["mass"]))).astype(int)
-    assert o["mass"] == pytest.approx(pmf[k], abs=TOL)
+    k = np.rint(totals[on_250] / 250).astype(int)
+    assert mass[on_250] == pytest.approx(pmf[k], abs=TOL)
     assert 1.0 - pmf[k].sum() < 1e-11  # the cut tails hold almost nothing
 
 
@@ -332,6 +337,23 @@ def test_pooled_group_of_small_whole_amounts_matches_the_recursion(con):
     index = np.rint(o["origin"] + np.arange(len(o["mass"])) - lo).astype(int)
     assert o["mass"] == pytest.approx(ref[index], abs=TOL)  # source: the recursion above
     assert 1.0 - ref[index].sum() < 1e-11
+
+
+def test_pooled_group_with_an_explicit_step_too_fine_is_refused(con):
+    rng = np.random.default_rng(505)
+    amounts = np.round(rng.lognormal(np.log(40_000), 1.0, 5_000), 2)
+    with pytest.raises(Exception, match="outcome_dist: step 0.01 would need more than 4,194,304 bins"):
+        dist(con, amounts, rng.uniform(0.1, 0.9, 5_000), 0.01)
+
+
+def test_pooled_group_on_an_explicit_inexact_step_keeps_the_mean(con):
+    rng = np.random.default_rng(506)
+    amounts = np.round(rng.lognormal(np.log(40_000), 1.0, 5_000), 2)
+    probs = rng.uniform(0.1, 0.9, 5_000).round(3)
+    o = dist(con, amounts, probs, 777.0)
+    assert o["step"] == 777.0 and o["rounding"] > 0
+    mean = one(con, f"SELECT outcome_mean(?::{OUTCOME})", [o])
+    assert mean == pytest.approx(float(amounts @ probs), rel=1e-12)  # splitting keeps the mean
 
 
 def edgeworth_cdf(amounts, probs, x):

@@ -14,14 +14,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .lattice import DEFAULT_BINS, EMPTY, OK, TOO_MANY_BINS
+from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, TOO_MANY_BINS
+from .lattice import _window as window
 from .order import canonical_order
 from .pooled import merge_leaves
 from .recursion import exact_batch
 from .spectral import fold_group
 
-#: Groups of at least this many deals (automatic step) are computed as pooled
-#: leaves (see ``_pooled``).
+#: Groups of at least this many deals are computed as pooled leaves (see ``_pooled``).
 POOL_MIN_DEALS = 4096
 #: Threads one batch of groups is split between, and the fewest deals worth it.
 THREADS = min(2, os.cpu_count() or 1)
@@ -107,7 +107,7 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
         step_req = np.zeros(n_groups)
     step_req = np.nan_to_num(np.asarray(step_req, dtype=np.float64), nan=0.0)
     counts = np.diff(offsets)
-    pooled = np.flatnonzero((counts >= POOL_MIN_DEALS) & ~(step_req > 0))
+    pooled = np.flatnonzero(counts >= POOL_MIN_DEALS)
     if not len(pooled):
         return _direct(amount, prob, offsets, step_req, bins)
     # Large groups skip the one-lattice plan: their rows go to _pooled.
@@ -116,11 +116,13 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     rows = np.repeat(direct, counts)
     direct_offsets = np.concatenate([[0], np.cumsum(np.where(direct, counts, 0))]).astype(np.int64)
     batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins)
-    parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins)
-             for g in pooled]
-    batch = splice(batch, pooled, parts)
-    status[pooled] = OK
-    batch.valid[pooled] = True
+    parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins,
+                     float(step_req[g])) for g in pooled]
+    wide = np.array([part is None for part in parts], dtype=bool)
+    batch = splice(batch, pooled, [(0.0, float(step_req[g]), np.ones(1), 0.0) if part is None
+                                   else part for g, part in zip(pooled, parts)])
+    status[pooled] = np.where(wide, TOO_MANY_BINS, OK)
+    batch.valid[pooled] = ~wide
     return batch, status
 
 
@@ -168,7 +170,7 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins):
     )
 
 
-def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int):
+def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int, step: float = 0.0):
     """A large group as the sum of leaves of LEAF_DEALS deals each.
 
     Putting every deal of a large group on one lattice fine enough for its
@@ -176,8 +178,11 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int):
     times the amounts). Instead the deals, in canonical order, are dealt out
     round-robin into leaves, so every leaf has a similar mix of sizes and a
     similar step; each leaf gets its own automatic lattice (one batched kernel
-    call), and ``pooled.merge_leaves`` adds the leaves up. Returns
-    ``(origin, step, mass, rounding)``.
+    call), and ``pooled.merge_leaves`` adds the leaves up. With an explicit
+    ``step`` every leaf, and the sum, use that step (the same lattice as one
+    recursion over all the deals, without its cost). Returns
+    ``(origin, step, mass, rounding)``, or None when an explicit step would need
+    more than MAX_BINS bins.
     """
     order = canonical_order(amount, prob)
     leaves = max(1, len(order) // LEAF_DEALS)
@@ -185,14 +190,20 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int):
     counts = np.bincount(np.arange(len(order)) % leaves, minlength=leaves)
     leaf_offsets = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
     a, p = amount[pick], prob[pick]
-    batch, _ = _direct(a, p, leaf_offsets, np.zeros(leaves), bins)
     starts = leaf_offsets[:-1]
     uncertain = (p > 0) & (p < 1)
     mean = np.add.reduceat(a * p, starts)
     var = np.add.reduceat(a * a * p * (1 - p), starts)
     largest = np.maximum.reduceat(np.where(uncertain, np.abs(a), 0.0), starts)
+    if step > 0:
+        lo, hi = window(float(mean.sum()), float(var.sum()), float(largest.max()), -np.inf, np.inf)
+        if (hi - lo) / step + 3 > MAX_BINS:
+            return None
+    batch, status = _direct(a, p, leaf_offsets, np.full(leaves, max(step, 0.0)), bins)
+    if (status == TOO_MANY_BINS).any():
+        return None
     return merge_leaves(batch.origin, batch.step, batch.mass, batch.offsets, batch.rounding,
-                        mean, var, largest, workers=THREADS)
+                        mean, var, largest, workers=THREADS, step_fixed=max(step, 0.0))
 
 
 def _deal_out(order: np.ndarray, leaves: int) -> np.ndarray:

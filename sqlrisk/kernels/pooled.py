@@ -120,13 +120,15 @@ def _cut_rows(prod, first, last, width):
     return out
 
 
-def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, workers=1):
+def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, workers=1,
+                 step_fixed=0.0):
     """Distribution of the sum of independent leaf outcomes.
 
     ``origin, step, rounding, mean, var, largest`` are per leaf (``mean`` and
     ``var`` of the leaf's true total, ``largest`` its largest ``|amount|``;
     they size the total's window, which sets the common step);
     ``mass``/``offsets`` hold the leaves' masses back to back.
+    ``step_fixed > 0`` (every leaf on that step) keeps the sum on it.
     Returns ``(origin, step, mass, rounding)`` of the sum.
     """
     lengths = np.diff(offsets)
@@ -135,7 +137,10 @@ def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, work
         return float(origin.sum()), float(step.max()), np.ones(1), float(rounding.sum())
     total_lo, total_hi = window(mean.sum(), var.sum(), largest.max(), -np.inf, np.inf)
     width = total_hi - total_lo
-    h, exact = _common_step(list(np.unique(step[spread])), width)
+    if step_fixed > 0:
+        h, exact = step_fixed, True
+    else:
+        h, exact = _common_step(list(np.unique(step[spread])), width)
     if not exact:
         coarse = math.sqrt(4.0 * MOVE_VARIANCE * var.sum() / spread.sum())
         h = max(h, min(coarse, width / MIN_BINS))
