@@ -10,11 +10,10 @@ from scipy.special import ndtri
 
 from . import arrowio as io
 from .errors import InputDataError, ParameterError
-from .kernels import readout
 from .kernels.copula import correlated_outcomes
 from .kernels.empirical import bin_totals, wilson
 from .kernels.lattice import common_unit
-from .kernels.outcome import OK, OutcomeBatch, concat
+from .kernels.outcome import OutcomeBatch, concat
 from .kernels.simulate import MAX_TRIALS, group_keys, simulate_threads
 
 #: Simulated totals held at once (x 8 bytes); groups are simulated in slices of this size.
