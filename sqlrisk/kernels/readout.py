@@ -36,13 +36,18 @@ Q_TOL = 1e-12
 
 
 @njit(cache=True, nogil=True)
+def cut_tolerance(x, origin, step):
+    """How close (in steps) a lattice point must be to the cut ``x`` to count as reaching it."""
+    return min(CUT_REL * max(1.0, abs(x), abs(origin)) / step, CUT_MAX_STEPS)
+
+
+@njit(cache=True, nogil=True)
 def prob_below(origin, step, cum, smooth, x):
     """``P(S < x)`` for one outcome with cumulative mass ``cum``."""
     m = len(cum)
-    scale = max(1.0, abs(x), abs(origin))
     if m == 1 or step == 0.0:
-        return cum[m - 1] if origin < x - CUT_REL * scale else 0.0
-    tol = min(CUT_REL * scale / step, CUT_MAX_STEPS)
+        return cum[m - 1] if origin < x - CUT_REL * max(1.0, abs(x), abs(origin)) else 0.0
+    tol = cut_tolerance(x, origin, step)
     u = (x - origin) / step
     if not smooth or m == 2:
         c = math.ceil(u - tol)

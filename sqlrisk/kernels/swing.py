@@ -33,7 +33,7 @@ from numba import njit
 
 from .lattice import DEFAULT_BINS, OK, plan_group
 from .order import canonical_order
-from .readout import CUT_MAX_STEPS, CUT_REL
+from .readout import cut_tolerance
 from .recursion import add_deals
 
 #: Largest working array (bins) of one partial product.
@@ -42,10 +42,12 @@ TOO_WIDE = -(1 << 62)  # a0 marking a working array that grew too wide
 
 
 @njit(cache=True, nogil=True)
-def _below(arr, a0, below, u, tol, smooth, g_lo, g_hi):
-    """P(S < x) with x at lattice position ``u``: ``below`` plus the mass of ``arr``
-    (indices ``a0 ...``) under ``u``, read as points, or as bins on an inexact lattice
-    (the extreme totals ``g_lo`` and ``g_hi`` stay points)."""
+def _below(arr, a0, below, x, shift, step, smooth, g_lo, g_hi):
+    """P(S < x) for totals ``shift + s * step``: ``below`` plus the mass of ``arr``
+    (indices ``a0 ...``) under ``x``, read as points, or as bins on an inexact lattice
+    (the extreme totals ``g_lo`` and ``g_hi`` stay points), with the readout's tolerance."""
+    u = (x - shift) / step
+    tol = cut_tolerance(x, shift, step)
     total = below
     if not smooth or g_hi - g_lo <= 1:
         first_at_or_above = math.ceil(u - tol)
@@ -112,12 +114,12 @@ def _extend(arr, a0, below, k, f, p, start, stop, lo_add, hi_add, need_lo, need_
 
 
 @njit(cache=True, nogil=True)
-def group_swings(k, f, p, u_won, u_lost, tol_won, tol_lost, smooth):
-    """P(S_-i < x) at ``x = t - a_i`` (column 0) and ``x = t`` (column 1) for every deal.
+def group_swings(k, f, p, x_won, x_lost, shift, step, smooth):
+    """P(S_-i < x) at ``x = x_won[i]`` (column 0) and ``x = x_lost`` (column 1) for every deal.
 
     ``k, f, p``: the active deals' lattice offsets, split fractions and
-    probabilities (canonical order); ``u_won[i]``, ``u_lost``: the two reading
-    positions in lattice units (total = shift + u * step). Returns ``(below, ok)``.
+    probabilities (canonical order); totals are ``shift + index * step``.
+    Returns ``(below, ok)``.
     """
     m = len(k)
     out = np.zeros((m, 2))
@@ -131,8 +133,10 @@ def group_swings(k, f, p, u_won, u_lost, tol_won, tol_lost, smooth):
     for i in range(m):
         pre_lo[i + 1] = pre_lo[i] + lo_add[i]
         pre_hi[i + 1] = pre_hi[i] + hi_add[i]
-    w_lo = np.int64(math.floor(min(u_won.min(), u_lost))) - 2
-    w_hi = np.int64(math.ceil(max(u_won.max(), u_lost))) + 2
+    u_lo = (min(x_won.min(), x_lost) - shift) / step
+    u_hi = (max(x_won.max(), x_lost) - shift) / step
+    w_lo = np.int64(math.floor(u_lo)) - 2
+    w_hi = np.int64(math.ceil(u_hi)) + 2
 
     # depth-first over blocks [l, r), each with the product of every deal outside it
     depth = 2 * (int(math.log2(max(m, 1))) + 2)
@@ -149,8 +153,8 @@ def group_swings(k, f, p, u_won, u_lost, tol_won, tol_lost, smooth):
         if r - l == 1:
             g_lo = pre_lo[m] - lo_add[l]
             g_hi = pre_hi[m] - hi_add[l]
-            out[l, 0] = _below(arr, a0, below, u_won[l], tol_won[l], smooth, g_lo, g_hi)
-            out[l, 1] = _below(arr, a0, below, u_lost, tol_lost, smooth, g_lo, g_hi)
+            out[l, 0] = _below(arr, a0, below, x_won[l], shift, step, smooth, g_lo, g_hi)
+            out[l, 1] = _below(arr, a0, below, x_lost, shift, step, smooth, g_lo, g_hi)
             continue
         mid = (l + r) // 2
         for side in range(2):
@@ -166,12 +170,6 @@ def group_swings(k, f, p, u_won, u_lost, tol_won, tol_lost, smooth):
             st_arr[top] = child
             top += 1
     return out, True
-
-
-def tolerance(x: np.ndarray, origin: float, step: float) -> np.ndarray:
-    """The readout's cut tolerance (``readout.CUT_REL``) in lattice units."""
-    scale = np.maximum(1.0, np.maximum(np.abs(x), abs(origin)))
-    return np.minimum(CUT_REL * scale / step, CUT_MAX_STEPS)
 
 
 def swings(amount: np.ndarray, prob: np.ndarray, target: float, bins: int = DEFAULT_BINS):
@@ -210,11 +208,7 @@ def swings(amount: np.ndarray, prob: np.ndarray, target: float, bins: int = DEFA
         won[still] = 1.0 - cdf[:len(still)]
         lost[still] = 1.0 - cdf[len(still):]
     if m:
-        u_won = (target - a - shift) / step
-        u_lost = (target - shift) / step
-        tol_won = tolerance(target - a, shift, step)
-        tol_lost = float(tolerance(np.array([target]), shift, step)[0])
-        below, ok = group_swings(k, f, p, u_won, u_lost, tol_won, tol_lost, smooth)
+        below, ok = group_swings(k, f, p, target - a, target, shift, step, smooth)
         if not ok:
             return None
         below = _same_for_twins(a, p, below)
@@ -235,8 +229,7 @@ def _whole_group_cdf(k, f, p, x, shift, step, smooth):
     if a0 == TOO_WIDE:
         return None
     g_lo, g_hi = int(lo_add.sum()), int(hi_add.sum())
-    tol = tolerance(x, shift, step)
-    return np.array([_below(arr, a0, below, u[j], tol[j], smooth, g_lo, g_hi) for j in range(len(x))])
+    return np.array([_below(arr, a0, below, v, shift, step, smooth, g_lo, g_hi) for v in x])
 
 
 def _same_for_twins(a, p, below):
