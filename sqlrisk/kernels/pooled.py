@@ -26,7 +26,7 @@ import math
 import numpy as np
 from numba import njit
 
-from .combine import _common_step
+from .combine import _common_step, _nonzero_span
 from .lattice import _window as window
 
 #: Complex numbers one batched transform may hold (64 MiB).
@@ -155,8 +155,7 @@ def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, work
         rows, row_origin, mean, var, largest = _level(rows, row_origin, h, mean, var, largest,
                                                       workers)
     out = rows[0]
-    nz = np.flatnonzero(out)
-    lo, hi = (nz[0], nz[-1] + 1) if len(nz) else (0, 1)
+    lo, hi = _nonzero_span(out)
     out = out[lo:hi]
     return float(row_origin[0] + lo * h), h, out / out.sum(), total_rounding
 
