@@ -9,15 +9,17 @@ macros also work as window functions), which makes one UDF call cover up to
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pyarrow as pa
 
 from . import arrowio as io
 from .errors import ParameterError
-from .kernels import readout
+from .kernels import readout, scenarios
 from .kernels.combine import Outcome, combine
 from .kernels.lattice import MAX_BINS
-from .kernels.outcome import TOO_MANY_BINS, OutcomeBatch, exact_outcomes
+from .kernels.outcome import SCENARIOS, TOO_MANY_BINS, OutcomeBatch, exact_outcomes
 
 #: Most bins ``outcome_histogram`` will draw.
 MAX_HISTOGRAM_BINS = 10_000
@@ -51,10 +53,32 @@ def _scatter_lists(values, offsets, keep, per_row) -> pa.ListArray:
     return io.lists_to_arrow(values, full, keep)
 
 
+@dataclass
+class SmallGroups:
+    """The usable deals of a batch and which groups are answered from their scenarios."""
+
+    amount: np.ndarray
+    prob: np.ndarray
+    offsets: np.ndarray
+    mask: np.ndarray
+
+
 def _deal_outcomes(fn: str, groups: io.Groups, step_req=None, correlation=None) -> OutcomeBatch:
+    """Outcomes of the groups' deals (as stored by ``outcome_dist``)."""
+    batch, _ = _group_outcomes(fn, groups, step_req, correlation)
+    return batch
+
+
+def _group_answers(fn: str, groups: io.Groups):
+    """For the aggregates that read a group at known places: lattice outcomes, and the
+    small groups whose lattice would not be exact, left to their scenarios."""
+    return _group_outcomes(fn, groups, scenario_max=scenarios.MAX_DEALS)
+
+
+def _group_outcomes(fn, groups, step_req=None, correlation=None, scenario_max=0):
     amount, prob, offsets = io.deals(fn, groups)
     if correlation is None:
-        batch, status = exact_outcomes(amount, prob, offsets, step_req)
+        batch, status = exact_outcomes(amount, prob, offsets, step_req, scenario_max=scenario_max)
     else:
         from .simulation import correlated_dist
         batch, status = correlated_dist(fn, amount, prob, offsets, step_req, correlation,
@@ -65,30 +89,67 @@ def _deal_outcomes(fn: str, groups: io.Groups, step_req=None, correlation=None) 
             f"{fn}: step {io._fmt(batch.step[g])} would need more than {MAX_BINS:,} bins for one "
             "group; use a larger step or leave step NULL for the automatic lattice")
     batch.valid &= ~groups.null_group
-    return batch
+    small = SmallGroups(amount, prob, offsets, (status == SCENARIOS) & ~groups.null_group)
+    return batch, small
 
 
-def _bands(b: OutcomeBatch, cuts, cut_offsets, keep) -> pa.ListArray:
-    sub = _subset(b, keep)
-    cut_vals, cut_offs = _ragged_subset(cuts, cut_offsets, keep)
-    out = readout.bands_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
-                              cut_vals, cut_offs)
-    return _scatter_lists(out, None, keep, np.diff(cut_offs) + 1)
+def _no_small(b: OutcomeBatch) -> SmallGroups:
+    return SmallGroups(np.zeros(0), np.zeros(0), np.zeros(len(b) + 1, np.int64),
+                       np.zeros(len(b), dtype=bool))
 
 
-def _quantiles(b: OutcomeBatch, qs, q_offsets, keep) -> pa.ListArray:
-    sub = _subset(b, keep)
-    q_vals, q_offs = _ragged_subset(qs, q_offsets, keep)
-    out = readout.quantiles_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
-                                  q_vals, q_offs)
-    return _scatter_lists(out, q_offs, keep, None)
+def _read_rows(b: OutcomeBatch, small: SmallGroups, values, offsets, keep, lengths,
+               on_lattice_fn, by_scenario_fn) -> np.ndarray:
+    """Answers for the rows in ``keep``, back to back (``lengths`` per row): lattice rows
+    read off their outcome by ``on_lattice_fn``, small groups from their scenarios by
+    ``by_scenario_fn`` (both take flat ``values`` and ``offsets`` of their rows)."""
+    on_lattice = keep & b.valid
+    sub = _subset(b, on_lattice)
+    vals, offs = _ragged_subset(values, offsets, on_lattice)
+    read = on_lattice_fn(sub.origin, sub.step, sub.mass, sub.offsets, sub.rounding, vals, offs)
+    by_scenario = keep & small.mask
+    if not by_scenario.any():
+        return read
+    vals, offs = _ragged_subset(values, offsets, by_scenario)
+    exact = by_scenario_fn(small.amount, small.prob, small.offsets,
+                           np.flatnonzero(by_scenario), vals, offs)
+    return _interleave(keep, on_lattice, read, exact, lengths)
 
 
-def _reach(b: OutcomeBatch, target, keep) -> pa.Array:
-    sub = _subset(b, keep)
-    cut_offs = np.arange(len(sub) + 1, dtype=np.int64)
-    out = readout.bands_batch(sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
-                              np.ascontiguousarray(target[keep]), cut_offs)
+def _interleave(keep, first, values_first, values_other, lengths) -> np.ndarray:
+    """Ragged rows of ``keep`` back to back, taken from ``values_first`` for the rows in
+    ``first`` and from ``values_other`` for the others (each holds its rows in order)."""
+    lengths = np.where(keep, lengths, 0)
+    starts = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
+    out = np.empty(starts[-1])
+    for mask, values in ((first & keep, values_first), (~first & keep, values_other)):
+        out[io._ranges(starts[:-1][mask], lengths[mask])] = values
+    return out
+
+
+def _bands_values(b: OutcomeBatch, small: SmallGroups, cuts, cut_offsets, keep) -> np.ndarray:
+    return _read_rows(b, small, cuts, cut_offsets, keep, np.diff(cut_offsets) + 1,
+                      readout.bands_batch, scenarios.bands_small)
+
+
+def _bands(b: OutcomeBatch, cuts, cut_offsets, keep, small=None) -> pa.ListArray:
+    small = small if small is not None else _no_small(b)
+    out = _bands_values(b, small, cuts, cut_offsets, keep)
+    return _scatter_lists(out, None, keep, np.diff(cut_offsets)[keep] + 1)
+
+
+def _quantiles(b: OutcomeBatch, qs, q_offsets, keep, small=None) -> pa.ListArray:
+    small = small if small is not None else _no_small(b)
+    out = _read_rows(b, small, qs, q_offsets, keep, np.diff(q_offsets),
+                     readout.quantiles_batch, scenarios.quantiles_small)
+    return _scatter_lists(out, None, keep, np.diff(q_offsets)[keep])
+
+
+def _reach(b: OutcomeBatch, target, keep, small=None) -> pa.Array:
+    small = small if small is not None else _no_small(b)
+    cut_offs = np.arange(len(b) + 1, dtype=np.int64)
+    out = _bands_values(b, small, np.ascontiguousarray(np.where(keep, target, 0.0)), cut_offs,
+                        keep)
     result = np.full(len(keep), np.nan)
     result[keep] = out[1::2]
     return io.doubles_to_arrow(result, keep)
@@ -120,16 +181,16 @@ def band_odds(rows):
     groups = io.read_groups(rows)
     cuts, cut_offsets, missing = io.per_group_list(fn, groups, "c", "cuts")
     io.check_cuts(fn, cuts, cut_offsets)
-    b = _deal_outcomes(fn, groups)
-    return _bands(b, cuts, cut_offsets, b.valid & ~missing)
+    b, small = _group_answers(fn, groups)
+    return _bands(b, cuts, cut_offsets, (b.valid | small.mask) & ~missing, small)
 
 
 def reach_odds(rows):
     fn = "reach_odds"
     groups = io.read_groups(rows)
     target, missing = io.per_group_scalar(fn, groups, "t", "target")
-    b = _deal_outcomes(fn, groups)
-    return _reach(b, target, b.valid & ~missing)
+    b, small = _group_answers(fn, groups)
+    return _reach(b, target, (b.valid | small.mask) & ~missing, small)
 
 
 def total_quantiles(rows):
@@ -137,8 +198,8 @@ def total_quantiles(rows):
     groups = io.read_groups(rows)
     qs, q_offsets, missing = io.per_group_list(fn, groups, "q", "quantile levels")
     io.check_levels(fn, qs)
-    b = _deal_outcomes(fn, groups)
-    return _quantiles(b, qs, q_offsets, b.valid & ~missing)
+    b, small = _group_answers(fn, groups)
+    return _quantiles(b, qs, q_offsets, (b.valid | small.mask) & ~missing, small)
 
 
 def outcome_merge(outcomes):
@@ -240,7 +301,7 @@ def outcome_histogram(o, bins):
                              f"[1, {MAX_HISTOGRAM_BINS:,}]; ask for 20 to 100 bins for a chart")
     sub = _subset(b, keep)
     lo, hi, prob, offs = readout.histogram_batch(
-        sub.origin, sub.step, sub.mass, sub.offsets, sub.smooth,
+        sub.origin, sub.step, sub.mass, sub.offsets, sub.rounding,
         counts[keep].astype(np.int64))
     lengths = np.zeros(len(keep), dtype=np.int64)
     lengths[keep] = np.diff(offs)

@@ -17,6 +17,7 @@ from dataclasses import dataclass
 import numpy as np
 from .lattice import _window as window
 from .lattice import common_unit
+from .readout import is_smooth
 from .spectral import fft_convolve
 
 #: Mass a convolution may drop from each tail (summed over a merge, ~1e-12 at worst).
@@ -161,7 +162,7 @@ def combine(outcomes: list[Outcome]) -> Outcome:
         moved, added = respread(o, step)
         rounding += added
         parts.append(moved)
-    if rounding > 0 and not any(o.rounding > 0 for o in lattices):
+    if is_smooth(step, rounding) and not any(is_smooth(o.step, o.rounding) for o in lattices):
         rounding += step / 2.0  # the merged outcome is now read as bins
     while len(parts) > 1:
         nxt = []

@@ -33,8 +33,8 @@ from numpy.polynomial.hermite_e import hermegauss
 from numpy.polynomial.legendre import leggauss
 from scipy.special import ndtr, ndtri
 
-from .lattice import (AUTO_MAX_BINS, DEFAULT_BINS, EXACT_MAX_BINS, EXACT_WORK, SPLIT_VARIANCE,
-                      common_unit)
+from .lattice import (AUTO_MAX_BINS, DEFAULT_BINS, SPLIT_VARIANCE, common_unit, exact_budget,
+                      inexact_budget)
 from .outcome import OK, exact_outcomes, splice
 
 NODES = 64
@@ -136,7 +136,8 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
         covers = (np.diff(base.offsets)[groups] - 1) * base.step[groups]
         steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z,
                                    base.step[groups], covers)
-        base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w))
+        automatic = step_req[groups] <= 0  # the nodes of these snap where the base did
+        base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w, automatic))
     return base, status
 
 
@@ -172,18 +173,18 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, ba
         chance = p[offsets[g]:offsets[g + 1]]
         live = (chunk != 0) & (chance > 0) & (chance < 1)
         unit = common_unit(chunk[live])[0] if live.any() else 0.0
-        exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // max(int(live.sum()), 1)))
-        if unit > 0 and width / unit + 3 <= exact_bins:
+        if unit > 0 and width / unit + 3 <= exact_budget(int(live.sum()), bins):
             steps[g] = unit
             continue
         var = float(np.sum(chunk[live] ** 2 * chance[live] * (1 - chance[live])))
         fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / max(float(chance[live].sum()), 1e-300))
-        step = max(min(width / max(bins - 8, 1), fine), width / AUTO_MAX_BINS, 1e-300)
+        budget = inexact_budget(int(live.sum()), bins)
+        step = max(min(width / max(budget - 8, 1), fine), width / AUTO_MAX_BINS, 1e-300)
         steps[g] = unit if unit > 0 and step < 2.0 * unit else step
     return steps
 
 
-def _mix(a, p, rho_rows, offsets, steps, z, w):
+def _mix(a, p, rho_rows, offsets, steps, z, w, automatic):
     """Weighted sum over nodes of the conditional outcomes, all on ``steps``.
 
     Every node shares the step and the certain deals, so node origins differ by
@@ -195,7 +196,8 @@ def _mix(a, p, rho_rows, offsets, steps, z, w):
     first = np.zeros(n, dtype=np.int64)
     batch = None
     for zz, ww in zip(z, w):
-        batch, status = exact_outcomes(a, conditional(p, rho_rows, zz), offsets, steps)
+        batch, status = exact_outcomes(a, conditional(p, rho_rows, zz), offsets, steps,
+                                       snap_explicit=automatic)
         if (status != OK).any():
             raise ValueError("correlated outcome: a conditional lattice failed")
         for g in range(n):

@@ -19,12 +19,12 @@ This module decides, per group, which lattice to use:
   spread of the total rather than its range once groups get large;
 * the **step**: the exact common unit of the amounts (the largest ``u`` with
   every ``a_i / u`` an integer, searched over up to ``UNIT_DIGITS`` decimal
-  places) when the window fits in the exact budget at that unit (``bins``, or
-  up to EXACT_WORK / n and at most EXACT_MAX_BINS for small groups, whose
-  exact lattices are cheap); otherwise the finest step that fits the bin
-  budget. The bin budget is ``bins`` (DEFAULT_BINS), or
-  more for large groups: splitting an amount adds at most ``p h^2 / 4`` to the
-  variance, so the step is also kept below ``sqrt(4 * SPLIT_VARIANCE * V /
+  places) when the window fits in the exact budget at that unit
+  (``exact_budget``: up to EXACT_WORK / n bins for n deals, at most
+  EXACT_MAX_BINS); otherwise the finest step that fits the bin budget
+  (``inexact_budget``: ``bins``, DEFAULT_BINS, for groups of 100 deals or more,
+  up to INEXACT_MAX_BINS for smaller ones), or finer for large groups:
+  splitting an amount adds at most ``p h^2 / 4`` to the variance, so the step is also kept below ``sqrt(4 * SPLIT_VARIANCE * V /
   sum(p))`` (at most AUTO_MAX_BINS bins); when that step is under twice the
   exact unit, the unit is used instead. On an inexact step each amount is split
   between its two neighbouring lattice points with weights that keep its mean
@@ -44,9 +44,16 @@ from numba import njit
 DEFAULT_BINS = 1024
 #: An exact lattice keeps every atom of the total (such as "this one large deal
 #: is won") where it is, so it may use more bins than an inexact one: up to
-#: EXACT_WORK / n bins for n uncertain deals, and at most EXACT_MAX_BINS.
-EXACT_WORK = 1 << 20
-EXACT_MAX_BINS = 1 << 12
+#: EXACT_WORK / n bins for n uncertain deals (the recursion's work is about
+#: deals x bins: 4M multiply-adds, about a millisecond), and at most
+#: EXACT_MAX_BINS (256 KB of mass per outcome).
+EXACT_WORK = 1 << 22
+EXACT_MAX_BINS = 1 << 15
+#: An inexact lattice of a smaller group may also use more bins for the same
+#: work: up to INEXACT_WORK / n (groups of 100 deals or more keep the bin
+#: budget), and at most INEXACT_MAX_BINS.
+INEXACT_WORK = 100 * 1024
+INEXACT_MAX_BINS = 1 << 13
 #: Hard ceiling on the bins of one outcome (32 MiB of mass), whatever the step.
 MAX_BINS = 1 << 22
 #: Ceiling on the bins the automatic lattice may grow to for large groups.
@@ -65,6 +72,7 @@ MULTIPLE_TOL = 1e-9
 OK = 0
 EMPTY = 1  # no usable deal: the outcome is NULL
 TOO_MANY_BINS = 2  # an explicit step would need more than MAX_BINS bins
+SCENARIOS = 3  # a small group left to its scenarios (``scenarios.py``), no lattice computed
 
 
 @njit(cache=True, nogil=True)
@@ -101,6 +109,18 @@ def common_unit(amount):
         if ok and g > 0:
             return g / scale, scale, g
     return 0.0, 0.0, 0
+
+
+@njit(cache=True, nogil=True)
+def exact_budget(n, bins):
+    """Bins an exact lattice may use for ``n`` uncertain deals."""
+    return max(bins, min(EXACT_MAX_BINS, EXACT_WORK // max(n, 1)))
+
+
+@njit(cache=True, nogil=True)
+def inexact_budget(n, bins):
+    """Bins an inexact lattice uses for ``n`` uncertain deals."""
+    return max(bins, min(INEXACT_MAX_BINS, INEXACT_WORK // max(n, 1)))
 
 
 @njit(cache=True, nogil=True)
@@ -178,13 +198,12 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
         exact = is_multiple(amount, step)
     else:
         u, units, unit_g = common_unit(amount)
-        exact_bins = max(bins, min(EXACT_MAX_BINS, EXACT_WORK // n))
-        if u > 0 and width / u + 3 <= exact_bins:
+        if u > 0 and width / u + 3 <= exact_budget(n, bins):
             step = u
             exact = True
         else:
             unit_g = 0
-            step = width / max(bins - 8, 1)
+            step = width / max(inexact_budget(n, bins) - 8, 1)
             fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / wins)
             step = max(min(step, fine), width / AUTO_MAX_BINS)
             if u > 0 and step < 2.0 * u and width / u <= AUTO_MAX_BINS:

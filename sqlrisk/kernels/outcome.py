@@ -14,11 +14,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, TOO_MANY_BINS
+from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
 from .lattice import _window as window
 from .order import canonical_order
 from .pooled import merge_leaves
 from .recursion import exact_batch
+from .scenarios import SNAP_DEALS
 from .spectral import fold_group
 
 #: Groups of at least this many deals are computed as pooled leaves (see ``_pooled``).
@@ -29,7 +30,8 @@ PARALLEL_MIN_DEALS = 20_000
 #: Deals per leaf of the pooled computation.
 LEAF_DEALS = 256
 
-__all__ = ["OutcomeBatch", "concat", "exact_outcomes", "splice", "EMPTY", "OK", "TOO_MANY_BINS"]
+__all__ = ["OutcomeBatch", "concat", "exact_outcomes", "splice", "EMPTY", "OK", "SCENARIOS",
+           "TOO_MANY_BINS"]
 
 
 @dataclass
@@ -53,11 +55,6 @@ class OutcomeBatch:
     def row(self, g: int) -> np.ndarray:
         return self.mass[self.offsets[g]:self.offsets[g + 1]]
 
-    @property
-    def smooth(self) -> np.ndarray:
-        """Rows read as bins rather than points: those whose lattice is not exact
-        (see ``readout``). A simulated outcome on an exact lattice is read as points."""
-        return self.rounding > 0
 
 
 def concat(parts: list["OutcomeBatch"]) -> "OutcomeBatch":
@@ -76,7 +73,8 @@ def concat(parts: list["OutcomeBatch"]) -> "OutcomeBatch":
     )
 
 
-def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BINS):
+def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BINS,
+                   scenario_max: int = 0, snap_max: int = SNAP_DEALS, snap_explicit=None):
     """Exact outcome of every group of deals.
 
     Parameters
@@ -86,10 +84,17 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     offsets : int64 array, ``len(groups) + 1``.
     step_req : float64 array per group, ``<= 0`` or NaN for the automatic lattice.
     bins : the automatic lattice's bin budget.
+    scenario_max : groups of at most this many uncertain deals whose lattice would
+        not be exact get status SCENARIOS (and an invalid row): the caller answers
+        them from their scenarios (``scenarios.py``).
+    snap_max : groups of at most this many uncertain deals whose automatic lattice
+        would not be exact have their scenario totals snapped to a fine lattice;
+        on a requested step too for the groups where ``snap_explicit`` (a boolean
+        array) is True (the correlated mixture's nodes, which must share their points).
 
     Returns
     -------
-    (OutcomeBatch, status) with ``status[g]`` one of OK, EMPTY, TOO_MANY_BINS.
+    (OutcomeBatch, status) with ``status[g]`` one of OK, EMPTY, TOO_MANY_BINS, SCENARIOS.
 
     Examples
     --------
@@ -108,14 +113,18 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     step_req = np.nan_to_num(np.asarray(step_req, dtype=np.float64), nan=0.0)
     counts = np.diff(offsets)
     pooled = np.flatnonzero(counts >= POOL_MIN_DEALS)
+    snap_explicit = (np.zeros(n_groups, dtype=bool) if snap_explicit is None
+                     else np.asarray(snap_explicit, dtype=bool))
+    limits = (int(scenario_max), int(snap_max))
     if not len(pooled):
-        return _direct(amount, prob, offsets, step_req, bins)
+        return _direct(amount, prob, offsets, step_req, bins, *limits, snap_explicit)
     # Large groups skip the one-lattice plan: their rows go to _pooled.
     direct = np.ones(n_groups, dtype=bool)
     direct[pooled] = False
     rows = np.repeat(direct, counts)
     direct_offsets = np.concatenate([[0], np.cumsum(np.where(direct, counts, 0))]).astype(np.int64)
-    batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins)
+    batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins, *limits,
+                            snap_explicit)
     parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins,
                      float(step_req[g])) for g in pooled]
     wide = np.array([part is None for part in parts], dtype=bool)
@@ -126,12 +135,16 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     return batch, status
 
 
-def _direct(amount, prob, offsets, step_req, bins):
+def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
+            snap_explicit=None):
     """Every group on its own lattice: the batched recursion, then the folded FFT
     path for the groups whose window cut their support."""
     n_groups = len(offsets) - 1
+    if snap_explicit is None:
+        snap_explicit = np.zeros(n_groups, dtype=bool)
     (status, origin, step, _exact, rounding, linear, lo, mass_offsets, mass,
-     k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins))
+     k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins),
+                                                scenario_max, snap_max, snap_explicit)
     for g in np.flatnonzero((status == OK) & ~linear):
         mass[mass_offsets[g]:mass_offsets[g + 1]] = fold_group(
             k[a0[g]:a1[g]], frac[a0[g]:a1[g]], p[a0[g]:a1[g]], int(lo[g]),
@@ -141,7 +154,8 @@ def _direct(amount, prob, offsets, step_req, bins):
     return batch, status
 
 
-def _exact_batch_threads(amount, prob, offsets, step_req, bins):
+def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, snap_max,
+                         snap_explicit):
     """``exact_batch`` with the groups split between THREADS threads.
 
     The kernel releases the GIL, and every group is computed on its own, so the
@@ -149,13 +163,15 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins):
     """
     n_groups = len(offsets) - 1
     if THREADS < 2 or n_groups < 2 * THREADS or offsets[-1] < PARALLEL_MIN_DEALS:
-        return exact_batch(amount, prob, offsets, step_req, bins)
+        return exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max,
+                           snap_explicit)
     cuts = np.searchsorted(offsets, np.linspace(0, offsets[-1], THREADS + 1)[1:-1])
     bounds = [0, *sorted(set(int(c) for c in cuts if 0 < c < n_groups)), n_groups]
     parts = []
     for g0, g1 in zip(bounds[:-1], bounds[1:]):
         r0, r1 = offsets[g0], offsets[g1]
-        parts.append((amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins))
+        parts.append((amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins,
+                      scenario_max, snap_max, snap_explicit[g0:g1]))
     with ThreadPoolExecutor(len(parts)) as pool:
         results = list(pool.map(lambda args: exact_batch(*args), parts))
     rows = [offsets[g0] for g0 in bounds[:-1]]

@@ -1,19 +1,27 @@
 """Reading probabilities, quantiles and moments off outcomes.
 
-Two readings, chosen per outcome:
+Two readings, chosen per outcome by its ``rounding`` and ``step``:
 
-* **points** (an exact outcome, ``rounding = 0`` and ``trials = 0``): the mass
-  sits on the lattice points themselves. ``P(S < c)`` adds the points below
-  ``c``; a point within ``CUT_REL`` of a cut (relative to the size of the
-  numbers involved, so float rounding in sums of amounts cannot put a total
-  that equals a cut below it) counts as reaching it.
-* **bins** (``rounding > 0`` or ``trials > 0``): the lattice total is only
-  within ``rounding`` of the true one, so each interior point's mass is read
-  as spread evenly over ``[x - step/2, x + step/2]`` and the CDF is linear
-  inside a bin (kernel-notes: interpolating inside the bin that holds a cut is
-  far more accurate than reading the points on an inexact lattice). The two
-  extreme points stay point masses: they are real atoms of the total, such as
-  "every deal lost".
+* **points** (``rounding < step``): the mass sits on the lattice points. That
+  is an exact outcome (``rounding = 0``), or a small group whose scenario
+  totals were each moved up to the next point, less than a step, without
+  being split (``scenarios.snap_fill``): a total on a cut stays on the cut's
+  upper side. ``P(S < c)`` adds the points below ``c``; a point within
+  ``CUT_REL`` of a cut (relative to the size of the numbers involved, so float
+  rounding in sums of amounts cannot put a total that equals a cut below it)
+  counts as reaching it.
+* **bins** (``rounding >= step``: amounts split between neighbouring points,
+  outcomes moved onto a common step, simulated totals binned): the
+  lattice total is only within ``rounding`` of the true one, so each interior
+  point's mass is read as spread evenly over ``[x - step/2, x + step/2]`` and
+  the CDF is linear inside a bin (kernel-notes: interpolating inside the bin
+  that holds a cut is far more accurate than reading the points on an
+  inexact lattice). The two extreme points stay point masses: they are real
+  atoms of the total, such as "every deal lost". Outcomes stored before
+  small groups were snapped have ``rounding`` 0 or at least a step, and read
+  as they always did, but for one case no real pipeline produces: an
+  inexact lattice on which no amount had to be split (``rounding`` exactly
+  half a step), whose points are its totals and now read as such.
 
 Quantiles invert the same CDF: the smallest total ``x`` with ``P(S <= x) >= q``
 (the inverted-CDF definition, Hyndman & Fan 1996 type 1), with a tolerance of
@@ -42,11 +50,18 @@ def cut_tolerance(x, origin, step):
 
 
 @njit(cache=True, nogil=True)
-def prob_below(origin, step, cum, smooth, x):
+def is_smooth(step, rounding):
+    """True when an outcome is read as bins, False when as points (see the module notes)."""
+    return rounding > 0.0 and rounding >= step
+
+
+@njit(cache=True, nogil=True)
+def prob_below(origin, step, cum, rounding, x):
     """``P(S < x)`` for one outcome with cumulative mass ``cum``."""
     m = len(cum)
     if m == 1 or step == 0.0:
         return cum[m - 1] if origin < x - CUT_REL * max(1.0, abs(x), abs(origin)) else 0.0
+    smooth = is_smooth(step, rounding)
     tol = cut_tolerance(x, origin, step)
     u = (x - origin) / step
     if not smooth or m == 2:
@@ -70,17 +85,18 @@ def prob_below(origin, step, cum, smooth, x):
 
 
 @njit(cache=True, nogil=True)
-def quantile(origin, step, mass, cum, smooth, q):
+def quantile(origin, step, mass, cum, rounding, q):
     """Smallest total ``x`` with ``P(S <= x) >= q`` for one outcome."""
     m = len(cum)
     if m == 1 or step == 0.0:
         return origin
-    if q <= 0.0:
+    smooth = is_smooth(step, rounding)
+    target = q - Q_TOL
+    if target <= 0.0:
         for i in range(m):
             if mass[i] > 0.0:
                 return origin + i * step if (not smooth or i == 0 or i == m - 1) else origin + (i - 0.5) * step
         return origin
-    target = q - Q_TOL
     if not smooth or m == 2:
         i = np.searchsorted(cum, target)
         return origin + min(i, m - 1) * step
@@ -95,7 +111,7 @@ def quantile(origin, step, mass, cum, smooth, q):
 
 
 @njit(cache=True, nogil=True)
-def bands_batch(origin, step, mass, offsets, smooth, cuts, cut_offsets):
+def bands_batch(origin, step, mass, offsets, rounding, cuts, cut_offsets):
     """Band probabilities of each row: ``len(cuts_row) + 1`` values per row."""
     n = len(origin)
     out = np.empty(len(cuts) + n)
@@ -105,7 +121,7 @@ def bands_batch(origin, step, mass, offsets, smooth, cuts, cut_offsets):
         total = min(cum[-1], 1.0)  # a stored mass may sum to 1 + a few ulps
         prev = 0.0
         for c in range(cut_offsets[g], cut_offsets[g + 1]):
-            below = min(prob_below(origin[g], step[g], cum, smooth[g], cuts[c]), total)
+            below = min(prob_below(origin[g], step[g], cum, rounding[g], cuts[c]), total)
             out[pos] = max(below - prev, 0.0)
             prev = max(prev, below)
             pos += 1
@@ -115,13 +131,13 @@ def bands_batch(origin, step, mass, offsets, smooth, cuts, cut_offsets):
 
 
 @njit(cache=True, nogil=True)
-def quantiles_batch(origin, step, mass, offsets, smooth, qs, q_offsets):
+def quantiles_batch(origin, step, mass, offsets, rounding, qs, q_offsets):
     out = np.empty(len(qs))
     for g in range(len(origin)):
         w = mass[offsets[g]:offsets[g + 1]]
         cum = np.cumsum(w)
         for i in range(q_offsets[g], q_offsets[g + 1]):
-            out[i] = quantile(origin[g], step[g], w, cum, smooth[g], qs[i])
+            out[i] = quantile(origin[g], step[g], w, cum, rounding[g], qs[i])
     return out
 
 
@@ -145,7 +161,7 @@ def moments_batch(origin, step, mass, offsets):
 
 
 @njit(cache=True, nogil=True)
-def histogram_batch(origin, step, mass, offsets, smooth, bins):
+def histogram_batch(origin, step, mass, offsets, rounding, bins):
     """``bins[g]`` equal-width bins over ``[Q(1e-9), Q(1 - 1e-9)]`` of each row.
 
     Returns flat ``lo, hi, prob`` arrays and their row offsets (row ``g`` has
@@ -164,8 +180,8 @@ def histogram_batch(origin, step, mass, offsets, smooth, bins):
     for g in range(len(origin)):
         w = mass[offsets[g]:offsets[g + 1]]
         cum = np.cumsum(w)
-        lo = quantile(origin[g], step[g], w, cum, smooth[g], 1e-9)
-        hi = quantile(origin[g], step[g], w, cum, smooth[g], 1.0 - 1e-9)
+        lo = quantile(origin[g], step[g], w, cum, rounding[g], 1e-9)
+        hi = quantile(origin[g], step[g], w, cum, rounding[g], 1.0 - 1e-9)
         k = bins[g]
         if hi <= lo:
             lo_out[pos] = lo
@@ -177,7 +193,8 @@ def histogram_batch(origin, step, mass, offsets, smooth, bins):
         for b in range(k):
             left = lo + (hi - lo) * b / k
             right = lo + (hi - lo) * (b + 1) / k
-            below = cum[-1] if b == k - 1 else prob_below(origin[g], step[g], cum, smooth[g], right)
+            below = cum[-1] if b == k - 1 else prob_below(origin[g], step[g], cum, rounding[g],
+                                                          right)
             lo_out[pos] = left
             hi_out[pos] = right
             p_out[pos] = max(below - prev, 0.0)

@@ -21,11 +21,14 @@ method for computing the Poisson binomial distribution function", CSDA 122,
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numba import njit
 
-from .lattice import EMPTY, OK, plan_group
+from .lattice import EMPTY, EXACT_MAX_BINS, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, plan_group
 from .order import canonical_order
+from .scenarios import snap_fill
 
 
 @njit(cache=True, nogil=True)
@@ -136,11 +139,34 @@ def fill_chunks(offset, frac, prob, start, size, width, rows):
 
 
 @njit(cache=True, nogil=True)
-def exact_batch(amount, prob, offsets, step_req, bins):
+def _snap_plan(a, step_req):
+    """``(status, origin, step, size)`` of the lattice a small group's totals are snapped to:
+    the multiples of the given step, or of a step that puts about EXACT_MAX_BINS points
+    across every total."""
+    lo_sum = 0.0
+    hi_sum = 0.0
+    for x in a:
+        if x < 0:
+            lo_sum += x
+        else:
+            hi_sum += x
+    step = step_req if step_req > 0 else (hi_sum - lo_sum) / (EXACT_MAX_BINS - 3)
+    first = math.floor(lo_sum / step)
+    size = np.int64(math.ceil(hi_sum / step) - first) + 1
+    return (TOO_MANY_BINS if size > MAX_BINS else OK), first * step, step, size
+
+
+@njit(cache=True, nogil=True)
+def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit):
     """Plan every group of a batch and compute those whose support fits.
 
     ``amount``/``prob`` hold the usable rows of all groups back to back
     (``offsets`` delimits them); ``step_req[g] > 0`` asks for that step.
+    A group of at most ``scenario_max`` uncertain deals whose lattice would not
+    be exact gets status SCENARIOS and no mass (its caller answers from the
+    scenarios); one of at most ``snap_max`` has its scenario totals snapped to
+    a lattice (``scenarios.snap_fill``) instead of splitting amounts, on the
+    automatic lattice (and on a requested step too where ``snap_explicit[g]``).
     Returns per-group arrays ``status, origin, step, exact, rounding, linear,
     lo, mass_offsets`` and the flat ``mass`` (linear groups filled, the others
     left for ``spectral.fold_group``), plus per-deal arrays in canonical order
@@ -162,6 +188,8 @@ def exact_batch(amount, prob, offsets, step_req, bins):
     act_frac = np.zeros(n_rows)
     act_start = offsets[:-1].copy()
     act_stop = offsets[:-1].copy()
+    snapped = np.zeros(n_groups, np.bool_)
+    snap_origin = np.zeros(n_groups)
 
     for g in range(n_groups):
         a0 = offsets[g]
@@ -193,6 +221,18 @@ def exact_batch(amount, prob, offsets, step_req, bins):
             act_amount[a0:m], act_prob[a0:m], step_req[g], bins,
             act_offset[a0:m], act_frac[a0:m],
         )
+        if st == OK and not ex and m - a0 <= scenario_max:
+            status[g] = SCENARIOS
+            continue
+        if st == OK and not ex and m - a0 <= snap_max and (step_req[g] <= 0 or snap_explicit[g]):
+            st, snap_origin[g], h, count = _snap_plan(act_amount[a0:m], step_req[g])
+            snapped[g] = True
+            status[g] = st
+            step[g] = h
+            linear[g] = True
+            size[g] = count if st == OK else 0
+            origin[g] = shift + snap_origin[g]
+            continue
         status[g] = st
         step[g] = h
         exact[g] = ex
@@ -212,6 +252,14 @@ def exact_batch(amount, prob, offsets, step_req, bins):
         out = mass[mass_offsets[g]:mass_offsets[g + 1]]
         if size[g] == 1:
             out[0] = 1.0
+            continue
+        if snapped[g]:
+            a0 = act_start[g]
+            a1 = act_stop[g]
+            moved = snap_fill(act_amount[a0:a1], act_prob[a0:a1], snap_origin[g], step[g], out)
+            # a move within float noise of the totals is none: the lattice is exact
+            rounding[g] = moved if moved > 1e-9 * step[g] else 0.0
+            exact[g] = rounding[g] == 0.0
             continue
         at = -lo[g]
         out[at] = 1.0

@@ -21,7 +21,9 @@ wide as the spread of the amounts, not of the total.
 
 The lattice is the group's automatic lattice (``lattice.plan_group``, as for
 ``outcome_dist``) and totals are read the same way as there (points on an
-exact lattice, bins on an inexact one).
+exact lattice, bins on an inexact one). A small group whose lattice would not
+be exact (at most ``scenarios.MAX_DEALS`` uncertain deals) is answered exactly
+from its scenarios instead: each ``S_-i`` by meeting in the middle.
 """
 
 from __future__ import annotations
@@ -31,6 +33,7 @@ import math
 import numpy as np
 from numba import njit
 
+from . import scenarios
 from .lattice import DEFAULT_BINS, OK, plan_group
 from .order import canonical_order
 from .readout import cut_tolerance
@@ -189,12 +192,13 @@ def swings(amount: np.ndarray, prob: np.ndarray, target: float, bins: int = DEFA
     m = len(order)
     k = np.zeros(m, np.int64)
     f = np.zeros(m)
-    step, smooth = 1.0, False
+    step, smooth, by_scenario = 1.0, False, False
     if m:
         status, step, exact, _lo, _size, _linear, _rounding = plan_group(a, p, 0.0, bins, k, f)
         if status != OK:
             return None
         smooth = not exact
+        by_scenario = smooth and m <= scenarios.MAX_DEALS
     won = np.empty(n)
     lost = np.empty(n)
     # inactive deals: the whole group's distribution read at a shifted total
@@ -202,13 +206,18 @@ def swings(amount: np.ndarray, prob: np.ndarray, target: float, bins: int = DEFA
     x_won = np.where(prob[still] >= 1.0, target, target - np.where(amount[still] != 0, amount[still], 0))
     x_lost = np.where((prob[still] >= 1.0) & (amount[still] != 0), target + amount[still], target)
     if len(still):
-        cdf = _whole_group_cdf(k, f, p, np.concatenate([x_won, x_lost]), shift, step, smooth)
+        at = np.concatenate([x_won, x_lost])
+        cdf = (scenarios.below_many(a, p, shift, at) if by_scenario
+               else _whole_group_cdf(k, f, p, at, shift, step, smooth))
         if cdf is None:
             return None
         won[still] = 1.0 - cdf[:len(still)]
         lost[still] = 1.0 - cdf[len(still):]
     if m:
-        below, ok = group_swings(k, f, p, target - a, target, shift, step, smooth)
+        if by_scenario:
+            below, ok = scenarios.swing_below(a, p, shift, target), True
+        else:
+            below, ok = group_swings(k, f, p, target - a, target, shift, step, smooth)
         if not ok:
             return None
         below = _same_for_twins(a, p, below)

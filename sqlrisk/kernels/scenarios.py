@@ -1,0 +1,271 @@
+"""Small groups by their win/loss scenarios: exact answers at any unit of the amounts.
+
+A group of ``m`` uncertain deals has at most ``2^m`` scenario totals. When
+those totals do not fit an exact lattice (amounts in cents, say, where three
+deals of 13,000 span four million cents), the answers that read the total at a
+few places (band odds at known cuts, reach at a target, quantiles, deal swing)
+are computed from the scenarios themselves, by meeting in the middle
+(Horowitz & Sahni, "Computing partitions with applications to the knapsack
+problem", J. ACM 21, 1974): the deals are dealt into two halves, each half's
+``2^(m/2)`` totals are listed with their probabilities and sorted, and
+
+    P(S < c) = sum over left totals x of P(x) * P(right total < c - x),
+
+one sweep over both sorted lists per cut (the right-hand pointer only moves
+down as ``x`` grows). Quantiles bisect on the total with that sweep, then
+return the scenario total found. Every answer is exact up to floating-point
+rounding of sums (about 1e-15).
+
+Stored outcomes of small groups cannot keep every scenario total where it is
+when the lattice of the amounts' unit is too wide; ``snap_fill`` then moves
+each scenario total up to the next point of a fine lattice without splitting
+it (``rounding`` = the largest move, below one step), so a heavy total stays
+one point, on the right side of every cut except those less than ``rounding``
+above it.
+
+Totals count as reaching a cut within ``readout.cut_tolerance``, as on lattices.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numba import njit
+
+from .order import canonical_order
+from .readout import CUT_REL, Q_TOL
+
+#: Most uncertain deals a group may have to be answered from its scenarios
+#: (two lists of 2^12 totals; about 1 ms a group for three cuts).
+MAX_DEALS = 24
+#: Most uncertain deals a stored outcome is snapped for (2^20 scenario totals).
+SNAP_DEALS = 20
+
+
+@njit(cache=True, nogil=True)
+def active_deals(amount, prob):
+    """The uncertain deals (0 < p < 1, a != 0) in canonical order, and the certain total."""
+    order = canonical_order(amount, prob)
+    a = np.empty(len(amount))
+    p = np.empty(len(amount))
+    shift = 0.0
+    m = 0
+    for r in order:
+        if prob[r] >= 1.0:
+            shift += amount[r]
+        elif prob[r] > 0.0 and amount[r] != 0.0:
+            a[m] = amount[r]
+            p[m] = prob[r]
+            m += 1
+    return a[:m], p[:m], shift
+
+
+@njit(cache=True, nogil=True)
+def scenario_totals(a, p):
+    """Total and probability of each of the ``2^len(a)`` scenarios (unsorted)."""
+    size = 1 << len(a)
+    total = np.zeros(size)
+    chance = np.ones(size)
+    filled = 1
+    for i in range(len(a)):
+        for s in range(filled):
+            total[filled + s] = total[s] + a[i]
+            chance[filled + s] = chance[s] * p[i]
+            chance[s] = chance[s] * (1.0 - p[i])
+        filled *= 2
+    return total, chance
+
+
+@njit(cache=True, nogil=True)
+def halves(a, p):
+    """Sorted totals of the two halves (deals dealt alternately) and their probabilities,
+    ``x, px, y, py, cy``, with ``cy[j]`` the probability of the ``j`` smallest right-hand
+    totals."""
+    x, px = scenario_totals(a[0::2], p[0::2])
+    order = np.argsort(x)
+    x, px = x[order], px[order]
+    y, py = scenario_totals(a[1::2], p[1::2])
+    order = np.argsort(y)
+    y, py = y[order], py[order]
+    cy = np.zeros(len(y) + 1)
+    for j in range(len(y)):
+        cy[j + 1] = cy[j] + py[j]
+    return x, px, y, py, cy
+
+
+@njit(cache=True, nogil=True)
+def _mass_under(x, px, y, cy, edge, inclusive):
+    """P(left + right < edge), or ``<= edge`` when ``inclusive``: one sweep, the right-hand
+    pointer moving down as the left-hand total grows."""
+    j = len(y)
+    total = 0.0
+    for i in range(len(x)):
+        limit = edge - x[i]
+        while j > 0 and (y[j - 1] > limit if inclusive else y[j - 1] >= limit):
+            j -= 1
+        if j == 0:
+            break
+        total += px[i] * cy[j]
+    return total
+
+
+@njit(cache=True, nogil=True)
+def below(x, px, y, cy, c, shift, tol):
+    """P(S < c) for ``S = shift + left + right``; totals within ``tol`` of ``c`` reach it."""
+    return _mass_under(x, px, y, cy, c - tol - shift, False)
+
+
+@njit(cache=True, nogil=True)
+def at_most(x, px, y, cy, v, shift, tol):
+    """P(S <= v), totals within ``tol`` above ``v`` included."""
+    return _mass_under(x, px, y, cy, v + tol - shift, True)
+
+
+@njit(cache=True, nogil=True)
+def _smallest_above(x, y, v):
+    """The smallest scenario total ``x_i + y_j`` above ``v`` (``inf`` if none)."""
+    best = np.inf
+    j = len(y)
+    for i in range(len(x)):
+        while j > 0 and y[j - 1] > v - x[i]:
+            j -= 1
+        if j < len(y):
+            best = min(best, x[i] + y[j])
+    return best
+
+
+@njit(cache=True, nogil=True)
+def tolerance(c, lowest):
+    """``readout.cut_tolerance`` in money: a total this close to ``c`` counts as reaching it."""
+    return CUT_REL * max(1.0, abs(c), abs(lowest))
+
+
+@njit(cache=True, nogil=True)
+def _lowest_possible(x, px, y, py):
+    """The smallest scenario total whose probability is not 0 (in floating point)."""
+    best = np.inf
+    for i in range(len(x)):
+        if x[i] + y[0] >= best:
+            break
+        for j in range(len(y)):
+            if x[i] + y[j] >= best:
+                break
+            if px[i] * py[j] > 0.0:
+                best = x[i] + y[j]
+                break
+    return best if best < np.inf else x[0] + y[0]
+
+
+@njit(cache=True, nogil=True)
+def quantile(x, px, y, py, cy, shift, q):
+    """Smallest scenario total ``t`` with ``P(S <= t) >= q`` (the readout's definition)."""
+    lo = _lowest_possible(x, px, y, py)
+    hi = x[-1] + y[-1]
+    tol = tolerance(shift + hi, shift + lo)
+    target = q - Q_TOL
+    if target <= 0.0 or at_most(x, px, y, cy, shift + lo, shift, tol) >= target:
+        return shift + lo
+    # invariant: P(S <= lo) < target <= P(S <= hi)
+    while hi - lo > tol:
+        mid = 0.5 * (lo + hi)
+        if mid <= lo or mid >= hi:
+            break
+        if at_most(x, px, y, cy, shift + mid, shift, tol) >= target:
+            hi = mid
+        else:
+            lo = mid
+    found = _smallest_above(x, y, lo + tol)
+    return shift + (found if found < np.inf else hi)
+
+
+@njit(cache=True, nogil=True)
+def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
+    """Band probabilities of the groups ``groups`` (``len(cuts_g) + 1`` values each)."""
+    out = np.empty(len(cuts) + len(groups))
+    pos = 0
+    for n, g in enumerate(groups):
+        a, p, shift = active_deals(amount[offsets[g]:offsets[g + 1]],
+                                   prob[offsets[g]:offsets[g + 1]])
+        x, px, y, py, cy = halves(a, p)
+        lowest = shift + x[0] + y[0]
+        prev = 0.0
+        for c in range(cut_offsets[n], cut_offsets[n + 1]):
+            b = min(below(x, px, y, cy, cuts[c], shift, tolerance(cuts[c], lowest)), 1.0)
+            out[pos] = max(b - prev, 0.0)
+            prev = max(prev, b)
+            pos += 1
+        out[pos] = max(1.0 - prev, 0.0)
+        pos += 1
+    return out
+
+
+@njit(cache=True, nogil=True)
+def quantiles_small(amount, prob, offsets, groups, qs, q_offsets):
+    """Quantiles of the groups ``groups`` at their levels."""
+    out = np.empty(len(qs))
+    for n, g in enumerate(groups):
+        a, p, shift = active_deals(amount[offsets[g]:offsets[g + 1]],
+                                   prob[offsets[g]:offsets[g + 1]])
+        x, px, y, py, cy = halves(a, p)
+        for i in range(q_offsets[n], q_offsets[n + 1]):
+            out[i] = quantile(x, px, y, py, cy, shift, qs[i])
+    return out
+
+
+@njit(cache=True, nogil=True)
+def below_many(a, p, shift, values):
+    """P(S < v) for each ``v`` (a group's uncertain deals ``a, p`` and certain total ``shift``)."""
+    x, px, y, py, cy = halves(a, p)
+    lowest = shift + x[0] + y[0]
+    out = np.empty(len(values))
+    for i in range(len(values)):
+        out[i] = min(below(x, px, y, cy, values[i], shift, tolerance(values[i], lowest)), 1.0)
+    return out
+
+
+@njit(cache=True, nogil=True)
+def swing_below(a, p, shift, target):
+    """For each uncertain deal ``i``: P(S_-i < target - a_i) and P(S_-i < target), where
+    ``S_-i`` is the total of every other deal (its own halves, so no division)."""
+    m = len(a)
+    out = np.zeros((m, 2))
+    keep = np.empty(m - 1, np.int64) if m > 0 else np.empty(0, np.int64)
+    for i in range(m):
+        k = 0
+        for j in range(m):
+            if j != i:
+                keep[k] = j
+                k += 1
+        x, px, y, py, cy = halves(a[keep], p[keep])
+        lowest = shift + x[0] + y[0]
+        for col in range(2):
+            v = target - a[i] if col == 0 else target
+            out[i, col] = min(below(x, px, y, cy, v, shift, tolerance(v, lowest)), 1.0)
+    return out
+
+
+# -- stored outcomes of small groups: scenario totals snapped to a fine lattice ----------
+
+#: A total this close to a lattice point (in steps) is on it, not above it.
+ON_POINT = 1e-9
+
+
+@njit(cache=True, nogil=True)
+def snap_fill(a, p, origin, step, out):
+    """Add each scenario's probability at the first lattice point at or above its total.
+
+    Point ``i`` of ``out`` is the total ``origin + i * step`` (without the certain
+    deals). Moving every total up, never down, keeps a total that sits on a cut
+    on the cut's upper side, where the band rule puts it. Returns the largest
+    distance between a total and its point (below one step).
+    """
+    total, chance = scenario_totals(a, p)
+    moved = 0.0
+    size = len(out)
+    for s in range(len(total)):
+        i = np.int64(math.ceil((total[s] - origin) / step - ON_POINT))
+        i = min(max(i, 0), size - 1)
+        moved = max(moved, abs(origin + i * step - total[s]))
+        out[i] += chance[s]
+    return moved
