@@ -16,9 +16,9 @@ import pyarrow as pa
 
 from . import arrowio as io
 from .errors import ParameterError
-from .kernels import readout, scenarios
+from .kernels import accuracy, heavy, readout, scenarios
 from .kernels.combine import Outcome, combine
-from .kernels.lattice import MAX_BINS
+from .kernels.lattice import DEFAULT_BINS, MAX_BINS
 from .kernels.outcome import SCENARIOS, TOO_MANY_BINS, OutcomeBatch, exact_outcomes
 
 #: Most bins ``outcome_histogram`` will draw.
@@ -61,6 +61,8 @@ class SmallGroups:
     prob: np.ndarray
     offsets: np.ndarray
     mask: np.ndarray
+    #: groups on an inexact lattice whose likeliest scenarios are heavy (``kernels/heavy.py``)
+    lumpy: np.ndarray
 
 
 def _deal_outcomes(fn: str, groups: io.Groups, step_req=None, correlation=None) -> OutcomeBatch:
@@ -89,13 +91,17 @@ def _group_outcomes(fn, groups, step_req=None, correlation=None, scenario_max=0)
             f"{fn}: step {io._fmt(batch.step[g])} would need more than {MAX_BINS:,} bins for one "
             "group; use a larger step or leave step NULL for the automatic lattice")
     batch.valid &= ~groups.null_group
-    small = SmallGroups(amount, prob, offsets, (status == SCENARIOS) & ~groups.null_group)
+    lumpy = np.zeros(len(batch), dtype=bool)
+    if scenario_max:
+        inexact = batch.valid & (batch.rounding > 0) & (batch.rounding >= batch.step)
+        lumpy[inexact] = heavy.lumpy_groups(prob, offsets)[inexact]
+    small = SmallGroups(amount, prob, offsets, (status == SCENARIOS) & ~groups.null_group, lumpy)
     return batch, small
 
 
 def _no_small(b: OutcomeBatch) -> SmallGroups:
-    return SmallGroups(np.zeros(0), np.zeros(0), np.zeros(len(b) + 1, np.int64),
-                       np.zeros(len(b), dtype=bool))
+    none = np.zeros(len(b), dtype=bool)
+    return SmallGroups(np.zeros(0), np.zeros(0), np.zeros(len(b) + 1, np.int64), none, none)
 
 
 def _read_rows(b: OutcomeBatch, small: SmallGroups, values, offsets, keep, lengths,
@@ -128,8 +134,19 @@ def _interleave(keep, first, values_first, values_other, lengths) -> np.ndarray:
 
 
 def _bands_values(b: OutcomeBatch, small: SmallGroups, cuts, cut_offsets, keep) -> np.ndarray:
-    return _read_rows(b, small, cuts, cut_offsets, keep, np.diff(cut_offsets) + 1,
-                      readout.bands_batch, scenarios.bands_small)
+    lengths = np.diff(cut_offsets) + 1
+    out = _read_rows(b, small, cuts, cut_offsets, keep, lengths, readout.bands_batch,
+                     scenarios.bands_small)
+    lumpy = keep & small.lumpy
+    if lumpy.any():
+        vals, offs = _ragged_subset(cuts, cut_offsets, lumpy)
+        exact_heavy = heavy.bands_heavy(small.amount, small.prob, small.offsets,
+                                        np.flatnonzero(lumpy), b.origin, b.step, b.mass,
+                                        b.offsets, b.rounding, vals, offs, DEFAULT_BINS)
+        kept = np.where(keep, lengths, 0)
+        starts = np.concatenate([[0], np.cumsum(kept)])[:-1]
+        out[io._ranges(starts[lumpy], lengths[lumpy])] = exact_heavy
+    return out
 
 
 def _bands(b: OutcomeBatch, cuts, cut_offsets, keep, small=None) -> pa.ListArray:
@@ -266,6 +283,15 @@ def outcome_sd(o):
     out = np.full(len(keep), np.nan)
     out[keep] = sd
     return io.doubles_to_arrow(out, keep)
+
+
+def outcome_error(o):
+    b = io.read_outcomes("outcome_error", o)
+    sub = _subset(b, b.valid)
+    out = np.full(len(b), np.nan)
+    out[b.valid] = accuracy.error_batch(sub.origin, sub.step, sub.mass, sub.offsets,
+                                        sub.rounding, sub.trials)
+    return io.doubles_to_arrow(out, b.valid)
 
 
 def outcome_shift(o, amount):

@@ -42,6 +42,7 @@ UDFS = {
     "outcome_quantiles": (f.outcome_quantiles, [OUTCOME_SQL, "DOUBLE[]"], "DOUBLE[]"),
     "outcome_mean": (f.outcome_mean, [OUTCOME_SQL], "DOUBLE"),
     "outcome_sd": (f.outcome_sd, [OUTCOME_SQL], "DOUBLE"),
+    "outcome_error": (f.outcome_error, [OUTCOME_SQL], "DOUBLE"),
     "outcome_shift": (f.outcome_shift, [OUTCOME_SQL, "DOUBLE"], OUTCOME_SQL),
     "outcome_add": (f.outcome_add, [OUTCOME_SQL, OUTCOME_SQL], OUTCOME_SQL),
     "outcome_histogram": (f.outcome_histogram, [OUTCOME_SQL, "BIGINT"],

@@ -63,11 +63,28 @@ def below_halves(units, probs, cuts_units) -> np.ndarray:
 
 
 def lattice(units, probs) -> tuple[int, np.ndarray]:
-    """``(first, pmf)``: P(S = (first + i) units) for every total, by FFT products."""
+    """``(first, pmf)``: P(S = (first + i) units) for every total, by FFT products; deals far
+    larger than the others are added last by shifting (f'(s) = (1 - p) f(s) + p f(s - a))."""
     units = np.asarray(units, dtype=np.int64)
     probs = np.asarray(probs, dtype=np.float64)
     first = int(units[units < 0].sum())
-    parts = []
+    big = np.abs(units) > 64 * max(1, int(np.median(np.abs(units))))
+    pmf = _product(units[~big], probs[~big])
+    for a, p in zip(units[big], probs[big]):
+        grown = np.zeros(len(pmf) + abs(int(a)))
+        if a > 0:
+            grown[:len(pmf)] += (1.0 - p) * pmf
+            grown[a:] += p * pmf
+        else:
+            grown[-a:] += (1.0 - p) * pmf
+            grown[:len(pmf)] += p * pmf
+        pmf = grown
+    return first, pmf / pmf.sum()
+
+
+def _product(units, probs) -> np.ndarray:
+    """P(S = lowest + i) for the deals given, as a product of their two-point distributions."""
+    parts = [np.ones(1)]
     for a, p in zip(units, probs):
         row = np.zeros(abs(int(a)) + 1)
         if a >= 0:
@@ -81,8 +98,7 @@ def lattice(units, probs) -> tuple[int, np.ndarray]:
         if len(parts) % 2:
             nxt.append(parts[-1])
         parts = nxt
-    pmf = np.maximum(parts[0], 0.0)
-    return first, pmf / pmf.sum()
+    return np.maximum(parts[0], 0.0)
 
 
 def _convolve(x: np.ndarray, y: np.ndarray) -> np.ndarray:

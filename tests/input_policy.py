@@ -172,6 +172,12 @@ CASES = [
     Case("a NULL outcome",
          f"SELECT outcome_mean(NULL::{{}})",
          "NULL"),
+    Case("the error of a NULL outcome",
+         f"SELECT outcome_error(NULL::{{}})",
+         "NULL"),
+    Case("the error of a simulated outcome (Wilson half-width at 1/2)",
+         f"SELECT round(outcome_error({outcome(trials='10000')}), 6)",
+         "0.009798"),
     Case("an outcome with a negative mass",
          f"SELECT outcome_bands({outcome(mass='[1.2, -0.2]')}, [50.0])",
          "error: outcome_bands: malformed outcome: mass contains -0.2; masses must be >= 0 (pass "

@@ -18,7 +18,7 @@ from conftest import ROOT
 OUTCOME = sqlrisk.OUTCOME_SQL
 AGGREGATES = ["outcome_dist", "band_odds", "reach_odds", "total_quantiles", "outcome_merge"]
 SCALARS = ["outcome_bands", "outcome_reach", "outcome_quantiles", "outcome_mean", "outcome_sd",
-           "outcome_shift", "outcome_add", "outcome_histogram"]
+           "outcome_shift", "outcome_add", "outcome_histogram", "outcome_error"]
 #: The four deal aggregates on the demo pipeline, one column each.
 FOUR_CALLS = ["outcome_dist(amount, win_prob)", "band_odds(amount, win_prob, [500000, 1000000])",
               "reach_odds(amount, win_prob, 800000)",

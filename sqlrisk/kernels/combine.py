@@ -162,8 +162,15 @@ def combine(outcomes: list[Outcome]) -> Outcome:
         moved, added = respread(o, step)
         rounding += added
         parts.append(moved)
-    if is_smooth(step, rounding) and not any(is_smooth(o.step, o.rounding) for o in lattices):
-        rounding += step / 2.0  # the merged outcome is now read as bins
+    if is_smooth(step, rounding):
+        if not any(is_smooth(o.step, o.rounding) for o in lattices):
+            rounding += step / 2.0  # the merged outcome is now read as bins
+        for o in lattices:
+            if 0.0 < o.rounding < o.step:
+                # a small group's totals were moved up onto its points; read as bins, centre
+                # the move (within +/- rounding/2) so it blurs like a split, not a shift
+                shift -= o.rounding / 2.0
+                rounding -= o.rounding / 2.0
     while len(parts) > 1:
         nxt = []
         for i in range(0, len(parts) - 1, 2):

@@ -162,8 +162,10 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, ba
             todo.append(g)
     if not todo:
         return steps  # the extreme nodes are only needed to size a new lattice
-    lo_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[-1]), offsets, step_req, bins)
-    hi_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[0]), offsets, step_req, bins)
+    lo_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[-1]), offsets, step_req, bins,
+                               flip=False)
+    hi_end, _ = exact_outcomes(a, conditional(p, rho_rows, z[0]), offsets, step_req, bins,
+                               flip=False)
     for g in todo:
         low = min(lo_end.origin[g], hi_end.origin[g])
         high = max(lo_end.origin[g] + lo_end.step[g] * (len(lo_end.row(g)) - 1),
@@ -197,7 +199,7 @@ def _mix(a, p, rho_rows, offsets, steps, z, w, automatic):
     batch = None
     for zz, ww in zip(z, w):
         batch, status = exact_outcomes(a, conditional(p, rho_rows, zz), offsets, steps,
-                                       snap_explicit=automatic)
+                                       snap_explicit=automatic, flip=False)
         if (status != OK).any():
             raise ValueError("correlated outcome: a conditional lattice failed")
         for g in range(n):

@@ -24,9 +24,12 @@ This module decides, per group, which lattice to use:
   EXACT_MAX_BINS); otherwise the finest step that fits the bin budget
   (``inexact_budget``: ``bins``, DEFAULT_BINS, for groups of 100 deals or more,
   up to INEXACT_MAX_BINS for smaller ones), or finer for large groups:
-  splitting an amount adds at most ``p h^2 / 4`` to the variance, so the step is also kept below ``sqrt(4 * SPLIT_VARIANCE * V /
-  sum(p))`` (at most AUTO_MAX_BINS bins); when that step is under twice the
-  exact unit, the unit is used instead. On an inexact step each amount is split
+  splitting an amount adds at most ``p h^2 / 4`` to the variance, so the step
+  is also kept below ``sqrt(4 * SPLIT_VARIANCE * V / sum(p))`` (at most
+  AUTO_MAX_BINS bins), with ``V`` the variance left once the RESOLVE_TOP
+  deals of largest variance are fixed (a dominant deal makes two copies of the
+  rest of the group, which the step must resolve); when that step is under
+  twice the exact unit, the unit is used instead. On an inexact step each amount is split
   between its two neighbouring lattice points with weights that keep its mean
   (``a = (k + f) h`` goes to ``k h`` with weight ``1 - f`` and to ``(k+1) h``
   with weight ``f``), so the lattice total has exactly the mean of the true
@@ -46,9 +49,9 @@ DEFAULT_BINS = 1024
 #: is won") where it is, so it may use more bins than an inexact one: up to
 #: EXACT_WORK / n bins for n uncertain deals (the recursion's work is about
 #: deals x bins: 4M multiply-adds, about a millisecond), and at most
-#: EXACT_MAX_BINS (256 KB of mass per outcome).
+#: EXACT_MAX_BINS (512 KB of mass per outcome).
 EXACT_WORK = 1 << 22
-EXACT_MAX_BINS = 1 << 15
+EXACT_MAX_BINS = 1 << 16
 #: An inexact lattice of a smaller group may also use more bins for the same
 #: work: up to INEXACT_WORK / n (groups of 100 deals or more keep the bin
 #: budget), and at most INEXACT_MAX_BINS.
@@ -58,8 +61,10 @@ INEXACT_MAX_BINS = 1 << 13
 MAX_BINS = 1 << 22
 #: Ceiling on the bins the automatic lattice may grow to for large groups.
 AUTO_MAX_BINS = 1 << 20
-#: Largest share of the variance that splitting amounts may add on the automatic lattice.
+#: Largest share of the variance that splitting amounts may add on the automatic lattice:
+#: of the whole group's, and of what is left once its RESOLVE_TOP largest deals are fixed.
 SPLIT_VARIANCE = 4e-3
+RESOLVE_TOP = 3
 #: Mass the window may leave out on each side of the total.
 TAIL = 1e-16
 LOG_TAIL = math.log(1.0 / TAIL)
@@ -176,13 +181,20 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
     largest = 0.0
     lo_sum = 0.0
     hi_sum = 0.0
+    top = np.zeros(RESOLVE_TOP + 1)  # the largest variance contributions, descending
     for i in range(n):
         a = amount[i]
         p = prob[i]
         mean += a * p
-        var += a * a * p * (1.0 - p)
+        part = a * a * p * (1.0 - p)
+        var += part
         wins += p
         largest = max(largest, abs(a))
+        j = RESOLVE_TOP
+        top[j] = part
+        while j > 0 and top[j] > top[j - 1]:
+            top[j], top[j - 1] = top[j - 1], top[j]
+            j -= 1
         if a < 0:
             lo_sum += a
         else:
@@ -204,7 +216,10 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
         else:
             unit_g = 0
             step = width / max(inexact_budget(n, bins) - 8, 1)
-            fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / wins)
+            # the rest of the group once its largest deals are fixed must be resolved too:
+            # a dominant deal's "won" and "lost" copies are each as narrow as the rest
+            rest = var - top[:RESOLVE_TOP].sum()
+            fine = math.sqrt(4.0 * SPLIT_VARIANCE * (rest if rest > 0 else var) / wins)
             step = max(min(step, fine), width / AUTO_MAX_BINS)
             if u > 0 and step < 2.0 * u and width / u <= AUTO_MAX_BINS:
                 # The exact unit costs at most twice the bins: exactness is worth it.

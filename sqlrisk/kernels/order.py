@@ -11,6 +11,9 @@ deals with a few thousand distinct amounts) a least-significant-digit radix
 sort on the bit patterns, 11 bits a pass, skipping passes whose digit is the
 same for every deal: about 2x faster there than sorting each run of tied
 amounts by probability.
+
+``activate`` lists a group's uncertain deals in this order (every kernel that
+builds a group's total starts there).
 """
 
 from __future__ import annotations
@@ -100,3 +103,32 @@ def _radix_by(keys, order):
 def _radix_order(amount, prob):
     order = _radix_by(_sort_keys(prob), np.arange(len(prob)))
     return _radix_by(_sort_keys(amount)[order], order)
+
+
+@njit(cache=True, nogil=True)
+def activate(amount, prob, flip, out_amount, out_prob):
+    """Write a group's uncertain deals (0 < p < 1, a != 0), in canonical order, into
+    ``out_amount``/``out_prob``; returns their count and the certain total.
+
+    With ``flip``, a deal more likely won than lost enters as its amount for
+    certain plus a loss of that amount with probability ``1 - p`` (exact in
+    floating point for p in (0.5, 1)): the same total, but the likeliest
+    scenario ("every deal goes its likelier way") is then a lattice point no
+    split touches, and fewer split amounts blur the totals near it.
+    """
+    shift = 0.0
+    m = 0
+    for r in canonical_order(amount, prob):
+        a = amount[r]
+        p = prob[r]
+        if p >= 1.0:
+            shift += a
+        elif p > 0.0 and a != 0.0:
+            if flip and p > 0.5:
+                shift += a
+                a = -a
+                p = 1.0 - p
+            out_amount[m] = a
+            out_prob[m] = p
+            m += 1
+    return m, shift

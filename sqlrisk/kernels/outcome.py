@@ -74,7 +74,8 @@ def concat(parts: list["OutcomeBatch"]) -> "OutcomeBatch":
 
 
 def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BINS,
-                   scenario_max: int = 0, snap_max: int = SNAP_DEALS, snap_explicit=None):
+                   scenario_max: int = 0, snap_max: int = SNAP_DEALS, snap_explicit=None,
+                   flip: bool = True):
     """Exact outcome of every group of deals.
 
     Parameters
@@ -91,6 +92,10 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
         would not be exact have their scenario totals snapped to a fine lattice;
         on a requested step too for the groups where ``snap_explicit`` (a boolean
         array) is True (the correlated mixture's nodes, which must share their points).
+    flip : deals more likely won than lost enter the lattice as a certain amount
+        less a possible loss (``recursion.exact_batch``); off where outcomes
+        computed with other probabilities must share their points (the
+        correlated mixture).
 
     Returns
     -------
@@ -115,16 +120,15 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     pooled = np.flatnonzero(counts >= POOL_MIN_DEALS)
     snap_explicit = (np.zeros(n_groups, dtype=bool) if snap_explicit is None
                      else np.asarray(snap_explicit, dtype=bool))
-    limits = (int(scenario_max), int(snap_max))
+    limits = (int(scenario_max), int(snap_max), snap_explicit, bool(flip))
     if not len(pooled):
-        return _direct(amount, prob, offsets, step_req, bins, *limits, snap_explicit)
+        return _direct(amount, prob, offsets, step_req, bins, *limits)
     # Large groups skip the one-lattice plan: their rows go to _pooled.
     direct = np.ones(n_groups, dtype=bool)
     direct[pooled] = False
     rows = np.repeat(direct, counts)
     direct_offsets = np.concatenate([[0], np.cumsum(np.where(direct, counts, 0))]).astype(np.int64)
-    batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins, *limits,
-                            snap_explicit)
+    batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins, *limits)
     parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins,
                      float(step_req[g])) for g in pooled]
     wide = np.array([part is None for part in parts], dtype=bool)
@@ -136,7 +140,7 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
 
 
 def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
-            snap_explicit=None):
+            snap_explicit=None, flip=True):
     """Every group on its own lattice: the batched recursion, then the folded FFT
     path for the groups whose window cut their support."""
     n_groups = len(offsets) - 1
@@ -144,7 +148,7 @@ def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
         snap_explicit = np.zeros(n_groups, dtype=bool)
     (status, origin, step, _exact, rounding, linear, lo, mass_offsets, mass,
      k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins),
-                                                scenario_max, snap_max, snap_explicit)
+                                                scenario_max, snap_max, snap_explicit, flip)
     for g in np.flatnonzero((status == OK) & ~linear):
         mass[mass_offsets[g]:mass_offsets[g + 1]] = fold_group(
             k[a0[g]:a1[g]], frac[a0[g]:a1[g]], p[a0[g]:a1[g]], int(lo[g]),
@@ -155,7 +159,7 @@ def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
 
 
 def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, snap_max,
-                         snap_explicit):
+                         snap_explicit, flip):
     """``exact_batch`` with the groups split between THREADS threads.
 
     The kernel releases the GIL, and every group is computed on its own, so the
@@ -164,14 +168,14 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
     n_groups = len(offsets) - 1
     if THREADS < 2 or n_groups < 2 * THREADS or offsets[-1] < PARALLEL_MIN_DEALS:
         return exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max,
-                           snap_explicit)
+                           snap_explicit, flip)
     cuts = np.searchsorted(offsets, np.linspace(0, offsets[-1], THREADS + 1)[1:-1])
     bounds = [0, *sorted(set(int(c) for c in cuts if 0 < c < n_groups)), n_groups]
     parts = []
     for g0, g1 in zip(bounds[:-1], bounds[1:]):
         r0, r1 = offsets[g0], offsets[g1]
         parts.append((amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins,
-                      scenario_max, snap_max, snap_explicit[g0:g1]))
+                      scenario_max, snap_max, snap_explicit[g0:g1], flip))
     with ThreadPoolExecutor(len(parts)) as pool:
         results = list(pool.map(lambda args: exact_batch(*args), parts))
     rows = [offsets[g0] for g0 in bounds[:-1]]

@@ -111,6 +111,20 @@ def quantile(origin, step, mass, cum, rounding, q):
 
 
 @njit(cache=True, nogil=True)
+def write_bands(below, total, out, pos):
+    """Write the bands of one group at ``out[pos:]`` from ``P(S < c)`` at its cuts (kept
+    non-decreasing and at most ``total``); returns the position after them."""
+    prev = 0.0
+    for b in below:
+        b = min(b, total)
+        out[pos] = max(b - prev, 0.0)
+        prev = max(prev, b)
+        pos += 1
+    out[pos] = max(total - prev, 0.0)
+    return pos + 1
+
+
+@njit(cache=True, nogil=True)
 def bands_batch(origin, step, mass, offsets, rounding, cuts, cut_offsets):
     """Band probabilities of each row: ``len(cuts_row) + 1`` values per row."""
     n = len(origin)
@@ -118,15 +132,10 @@ def bands_batch(origin, step, mass, offsets, rounding, cuts, cut_offsets):
     pos = 0
     for g in range(n):
         cum = np.cumsum(mass[offsets[g]:offsets[g + 1]])
-        total = min(cum[-1], 1.0)  # a stored mass may sum to 1 + a few ulps
-        prev = 0.0
-        for c in range(cut_offsets[g], cut_offsets[g + 1]):
-            below = min(prob_below(origin[g], step[g], cum, rounding[g], cuts[c]), total)
-            out[pos] = max(below - prev, 0.0)
-            prev = max(prev, below)
-            pos += 1
-        out[pos] = max(total - prev, 0.0)
-        pos += 1
+        below = np.empty(cut_offsets[g + 1] - cut_offsets[g])
+        for c in range(len(below)):
+            below[c] = prob_below(origin[g], step[g], cum, rounding[g], cuts[cut_offsets[g] + c])
+        pos = write_bands(below, min(cum[-1], 1.0), out, pos)  # a mass may sum to 1 + ulps
     return out
 
 

@@ -26,9 +26,9 @@ import math
 import numpy as np
 from numba import njit
 
-from .lattice import EMPTY, EXACT_MAX_BINS, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, plan_group
-from .order import canonical_order
-from .scenarios import snap_fill
+from .lattice import EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, plan_group
+from .order import activate
+from .scenarios import SNAP_BINS, snap_fill
 
 
 @njit(cache=True, nogil=True)
@@ -141,7 +141,7 @@ def fill_chunks(offset, frac, prob, start, size, width, rows):
 @njit(cache=True, nogil=True)
 def _snap_plan(a, step_req):
     """``(status, origin, step, size)`` of the lattice a small group's totals are snapped to:
-    the multiples of the given step, or of a step that puts about EXACT_MAX_BINS points
+    the multiples of the given step, or of a step that puts about SNAP_BINS points
     across every total."""
     lo_sum = 0.0
     hi_sum = 0.0
@@ -150,14 +150,15 @@ def _snap_plan(a, step_req):
             lo_sum += x
         else:
             hi_sum += x
-    step = step_req if step_req > 0 else (hi_sum - lo_sum) / (EXACT_MAX_BINS - 3)
+    step = step_req if step_req > 0 else (hi_sum - lo_sum) / (SNAP_BINS - 3)
     first = math.floor(lo_sum / step)
     size = np.int64(math.ceil(hi_sum / step) - first) + 1
     return (TOO_MANY_BINS if size > MAX_BINS else OK), first * step, step, size
 
 
 @njit(cache=True, nogil=True)
-def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit):
+def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit,
+                flip):
     """Plan every group of a batch and compute those whose support fits.
 
     ``amount``/``prob`` hold the usable rows of all groups back to back
@@ -167,6 +168,7 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
     scenarios); one of at most ``snap_max`` has its scenario totals snapped to
     a lattice (``scenarios.snap_fill``) instead of splitting amounts, on the
     automatic lattice (and on a requested step too where ``snap_explicit[g]``).
+    ``flip`` is passed to ``activate``.
     Returns per-group arrays ``status, origin, step, exact, rounding, linear,
     lo, mass_offsets`` and the flat ``mass`` (linear groups filled, the others
     left for ``spectral.fold_group``), plus per-deal arrays in canonical order
@@ -197,18 +199,9 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         if a1 == a0:
             status[g] = EMPTY
             continue
-        order = canonical_order(amount[a0:a1], prob[a0:a1])
-        shift = 0.0
-        m = a0
-        for r in order:
-            a = amount[a0 + r]
-            p = prob[a0 + r]
-            if p >= 1.0:
-                shift += a
-            elif p > 0.0 and a != 0.0:
-                act_amount[m] = a
-                act_prob[m] = p
-                m += 1
+        m, shift = activate(amount[a0:a1], prob[a0:a1], flip, act_amount[a0:a1],
+                            act_prob[a0:a1])
+        m += a0
         act_stop[g] = m
         if m == a0:
             origin[g] = shift

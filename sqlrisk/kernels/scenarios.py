@@ -33,31 +33,24 @@ import math
 import numpy as np
 from numba import njit
 
-from .order import canonical_order
-from .readout import CUT_REL, Q_TOL
+from .order import activate
+from .readout import CUT_REL, Q_TOL, write_bands
 
 #: Most uncertain deals a group may have to be answered from its scenarios
 #: (two lists of 2^12 totals; about 1 ms a group for three cuts).
 MAX_DEALS = 24
 #: Most uncertain deals a stored outcome is snapped for (2^20 scenario totals).
 SNAP_DEALS = 20
+#: Points of the lattice a small group's totals are snapped to (256 KB).
+SNAP_BINS = 1 << 15
 
 
 @njit(cache=True, nogil=True)
 def active_deals(amount, prob):
     """The uncertain deals (0 < p < 1, a != 0) in canonical order, and the certain total."""
-    order = canonical_order(amount, prob)
     a = np.empty(len(amount))
     p = np.empty(len(amount))
-    shift = 0.0
-    m = 0
-    for r in order:
-        if prob[r] >= 1.0:
-            shift += amount[r]
-        elif prob[r] > 0.0 and amount[r] != 0.0:
-            a[m] = amount[r]
-            p[m] = prob[r]
-            m += 1
+    m, shift = activate(amount, prob, False, a, p)
     return a[:m], p[:m], shift
 
 
@@ -142,25 +135,11 @@ def tolerance(c, lowest):
 
 
 @njit(cache=True, nogil=True)
-def _lowest_possible(x, px, y, py):
-    """The smallest scenario total whose probability is not 0 (in floating point)."""
-    best = np.inf
-    for i in range(len(x)):
-        if x[i] + y[0] >= best:
-            break
-        for j in range(len(y)):
-            if x[i] + y[j] >= best:
-                break
-            if px[i] * py[j] > 0.0:
-                best = x[i] + y[j]
-                break
-    return best if best < np.inf else x[0] + y[0]
-
-
-@njit(cache=True, nogil=True)
-def quantile(x, px, y, py, cy, shift, q):
-    """Smallest scenario total ``t`` with ``P(S <= t) >= q`` (the readout's definition)."""
-    lo = _lowest_possible(x, px, y, py)
+def quantile(x, px, y, cy, shift, q):
+    """Smallest scenario total ``t`` with ``P(S <= t) >= q`` (the readout's definition).
+    Every scenario of uncertain deals has a positive probability, so a level of (about) 0
+    gives the smallest total, even when its probability is too small for a double."""
+    lo = x[0] + y[0]
     hi = x[-1] + y[-1]
     tol = tolerance(shift + hi, shift + lo)
     target = q - Q_TOL
@@ -189,14 +168,11 @@ def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
                                    prob[offsets[g]:offsets[g + 1]])
         x, px, y, py, cy = halves(a, p)
         lowest = shift + x[0] + y[0]
-        prev = 0.0
-        for c in range(cut_offsets[n], cut_offsets[n + 1]):
-            b = min(below(x, px, y, cy, cuts[c], shift, tolerance(cuts[c], lowest)), 1.0)
-            out[pos] = max(b - prev, 0.0)
-            prev = max(prev, b)
-            pos += 1
-        out[pos] = max(1.0 - prev, 0.0)
-        pos += 1
+        at = np.empty(cut_offsets[n + 1] - cut_offsets[n])
+        for c in range(len(at)):
+            cut = cuts[cut_offsets[n] + c]
+            at[c] = below(x, px, y, cy, cut, shift, tolerance(cut, lowest))
+        pos = write_bands(at, 1.0, out, pos)
     return out
 
 
@@ -209,7 +185,7 @@ def quantiles_small(amount, prob, offsets, groups, qs, q_offsets):
                                    prob[offsets[g]:offsets[g + 1]])
         x, px, y, py, cy = halves(a, p)
         for i in range(q_offsets[n], q_offsets[n + 1]):
-            out[i] = quantile(x, px, y, py, cy, shift, qs[i])
+            out[i] = quantile(x, px, y, cy, shift, qs[i])
     return out
 
 
