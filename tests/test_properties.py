@@ -326,9 +326,10 @@ def test_aggregates_equal_every_scenario_with_cuts_on_totals(con, deals, picks, 
         "SELECT band_odds(amount, prob, ?::DOUBLE[]), reach_odds(amount, prob, ?), "
         "total_quantiles(amount, prob, ?::DOUBLE[]), outcome_dist(amount, prob) "
         f"FROM {DEALS}", [cuts, target, levels, amounts, probs]).fetchone()
-    # README "Bands": a total within 1e-13 (relative) below a cut counts as reaching it
+    # README "Bands": a total within 1e-13 below a cut, relative to the cut and the extreme
+    # totals, counts as reaching it
     def reaching(c):
-        return c - 1e-13 * max(1.0, abs(c), abs(totals[0]))
+        return c - 1e-13 * max(1.0, abs(c), abs(totals[0]), abs(totals[-1]))
 
     # source: brute force over every scenario
     assert row[0] == pytest.approx(ref_bands(ref, [reaching(c) for c in cuts]), abs=TOL)

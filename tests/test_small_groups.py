@@ -141,3 +141,62 @@ def test_equal_amounts_match_scipy_poisson_binom(con, n, amount):
     assert bands == pytest.approx(np.diff(np.concatenate([[0.0], below, [1.0]])).tolist(), abs=TOL)
     for got, q in zip(quants, [0.1, 0.5, 0.9]):
         assert got == pytest.approx(dist.ppf(q) * amount, rel=1e-12)  # source: scipy ppf
+
+
+def test_cuts_on_every_total_of_many_groups_with_likely_deals(con):
+    """300 groups of 2 to 5 deals in cents that share an odd unit (7 cents, so the exact
+    lattice is used), most deals likelier won than lost, and a cut on every scenario total
+    (the lowest, 0, among them). A likely deal enters the lattice as its amount for certain
+    less a possible loss, so the lowest total comes out of amounts that cancel; a cut there
+    must still read it as reached (this case once read P(total < 0) as P(every deal lost))."""
+    rng = np.random.default_rng(7)
+    rows, expected = [], {}
+    for g in range(300):
+        n = int(rng.integers(2, 6))
+        units = 7 * rng.integers(100, 800_000, n)
+        probs = rng.uniform(0.3, 0.95, n).round(2)
+        values, mass = ref.atoms(units, probs)
+        # source: brute force over every scenario
+        bands = np.diff(np.concatenate([[0.0], ref.below(values, mass, values), [1.0]]))
+        expected[g] = (values * 0.01, bands)
+        rows += [(g, float(u) * 0.01, float(p)) for u, p in zip(units, probs)]
+    con.execute("CREATE TABLE d (g INT, amount DOUBLE, prob DOUBLE)")
+    con.executemany("INSERT INTO d VALUES (?, ?, ?)", rows)
+    con.execute("CREATE TABLE c (g INT, cuts DOUBLE[])")
+    con.executemany("INSERT INTO c VALUES (?, ?)",
+                    [(g, v.tolist()) for g, (v, _) in expected.items()])
+    got = con.execute("SELECT g, band_odds(amount, prob, cuts), "
+                      "outcome_bands(outcome_dist(amount, prob), any_value(cuts)) "
+                      "FROM d JOIN c USING (g) GROUP BY g").fetchall()
+    assert len(got) == 300
+    for g, bands, stored in got:
+        assert bands == pytest.approx(expected[g][1].tolist(), abs=TOL), g
+        assert stored == pytest.approx(expected[g][1].tolist(), abs=TOL), g
+
+
+def test_stored_outcomes_of_small_groups_stay_within_the_exact_size_limit(con):
+    """README *The lattice*: an exact lattice holds at most 65,536 points (512 KB); a small
+    group whose exact lattice would be wider is stored by its scenarios on 32,768 points.
+    Groups of 2 to 8 deals in cents and hundreds, every third with one deal 1,000 times the
+    others (its "won" and "lost" copies of the rest once took an exact lattice of up to a
+    million points), and a three-deal group that once did too."""
+    rng = np.random.default_rng(3)
+    groups = [(np.array([124_886, 61_722, 1_356_346]), np.array([0.85, 0.17, 0.36]), 0.01)]
+    for g in range(150):
+        unit = (0.01, 100.0)[g % 2]
+        n = int(rng.integers(2, 9))
+        units = np.maximum(np.round(np.exp(rng.normal(np.log(13_000), 1.0, n)) / unit), 1)
+        units = units.astype(np.int64)
+        if g % 3 == 0:
+            units[0] *= 1000
+        groups.append((units, rng.uniform(0.02, 0.95, n).round(2), unit))
+    for units, probs, unit in groups:
+        values, mass = ref.atoms(units, probs)
+        cuts = cut_points(values, rng, most=10)
+        o, bands = con.execute(f"SELECT outcome_dist(amount, prob), band_odds(amount, prob, ?) "
+                               f"FROM {DEALS}", [(cuts * unit).tolist(), (units * unit).tolist(),
+                                                 probs.tolist()]).fetchone()
+        assert len(o["mass"]) <= 65_536, (units, probs)
+        # source: brute force over every scenario
+        expected = np.diff(np.concatenate([[0.0], ref.below(values, mass, cuts), [1.0]]))
+        assert bands == pytest.approx(expected.tolist(), abs=TOL)

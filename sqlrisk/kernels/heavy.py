@@ -139,7 +139,8 @@ def bands_heavy(amount, prob, offsets, groups, origin, step, mass, mass_offsets,
         a0, a1 = offsets[g], offsets[g + 1]
         a = np.empty(a1 - a0)
         p = np.empty(a1 - a0)
-        m, shift = activate(amount[a0:a1], prob[a0:a1], True, a, p)
+        m, certain, flipped = activate(amount[a0:a1], prob[a0:a1], True, a, p)
+        shift = certain + flipped
         a, p = a[:m], p[:m]
         k = np.zeros(m, np.int64)
         f = np.zeros(m)
@@ -150,10 +151,11 @@ def bands_heavy(amount, prob, offsets, groups, origin, step, mass, mass_offsets,
         if st == OK and linear and size == len(light):
             heavy_totals, heavy_cum = split_heavy(a, k, f, p, light, first)
         cum = np.cumsum(light)
+        top = origin[g] + (len(cum) - 1) * step[g]
         below = np.empty(cut_offsets[n + 1] - cut_offsets[n])
         for c in range(len(below)):
             x = cuts[cut_offsets[n] + c]
-            edge = x - tolerance(x, origin[g]) - shift
+            edge = x - tolerance(x, origin[g], top) - shift
             below[c] = heavy_cum[np.searchsorted(heavy_totals, edge)]
             below[c] += prob_below(origin[g], step[g], cum, rounding[g], x)
         pos = write_bands(below, 1.0, out, pos)

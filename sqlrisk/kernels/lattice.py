@@ -218,8 +218,10 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
             step = width / max(inexact_budget(n, bins) - 8, 1)
             # the rest of the group once its largest deals are fixed must be resolved too:
             # a dominant deal's "won" and "lost" copies are each as narrow as the rest
-            rest = var - top[:RESOLVE_TOP].sum()
-            fine = math.sqrt(4.0 * SPLIT_VARIANCE * (rest if rest > 0 else var) / wins)
+            rest = var - top[:RESOLVE_TOP].sum() if n > RESOLVE_TOP else 0.0
+            if rest <= 1e-12 * var:  # nothing left, up to float noise in the subtraction
+                rest = var
+            fine = math.sqrt(4.0 * SPLIT_VARIANCE * rest / wins)
             step = max(min(step, fine), width / AUTO_MAX_BINS)
             if u > 0 and step < 2.0 * u and width / u <= AUTO_MAX_BINS:
                 # The exact unit costs at most twice the bins: exactness is worth it.

@@ -108,7 +108,8 @@ def _radix_order(amount, prob):
 @njit(cache=True, nogil=True)
 def activate(amount, prob, flip, out_amount, out_prob):
     """Write a group's uncertain deals (0 < p < 1, a != 0), in canonical order, into
-    ``out_amount``/``out_prob``; returns their count and the certain total.
+    ``out_amount``/``out_prob``; returns their count, the total of the certain deals
+    (p = 1) and the total the flipped deals add for certain (0 without ``flip``).
 
     With ``flip``, a deal more likely won than lost enters as its amount for
     certain plus a loss of that amount with probability ``1 - p`` (exact in
@@ -116,19 +117,20 @@ def activate(amount, prob, flip, out_amount, out_prob):
     scenario ("every deal goes its likelier way") is then a lattice point no
     split touches, and fewer split amounts blur the totals near it.
     """
-    shift = 0.0
+    certain = 0.0
+    flipped = 0.0
     m = 0
     for r in canonical_order(amount, prob):
         a = amount[r]
         p = prob[r]
         if p >= 1.0:
-            shift += a
+            certain += a
         elif p > 0.0 and a != 0.0:
             if flip and p > 0.5:
-                shift += a
+                flipped += a
                 a = -a
                 p = 1.0 - p
             out_amount[m] = a
             out_prob[m] = p
             m += 1
-    return m, shift
+    return m, certain, flipped

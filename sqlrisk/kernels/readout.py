@@ -44,9 +44,17 @@ Q_TOL = 1e-12
 
 
 @njit(cache=True, nogil=True)
-def cut_tolerance(x, origin, step):
-    """How close (in steps) a lattice point must be to the cut ``x`` to count as reaching it."""
-    return min(CUT_REL * max(1.0, abs(x), abs(origin)) / step, CUT_MAX_STEPS)
+def cut_tolerance(x, lowest, highest, step):
+    """How close (in steps) a lattice point must be to the cut ``x`` to count as reaching it.
+
+    Relative to the largest number involved: the cut and the group's extreme totals
+    ``lowest`` and ``highest``. A total near 0 may come out of a sum of large amounts
+    that cancel (a certain 6,731.55 less a possible loss of 6,731.55), with an error of
+    a few ulps of those amounts, not of 0; every partial sum of a group's amounts lies
+    within about the span of its totals.
+    """
+    scale = max(1.0, abs(x), abs(lowest), abs(highest))
+    return min(CUT_REL * scale / step, CUT_MAX_STEPS)
 
 
 @njit(cache=True, nogil=True)
@@ -62,7 +70,7 @@ def prob_below(origin, step, cum, rounding, x):
     if m == 1 or step == 0.0:
         return cum[m - 1] if origin < x - CUT_REL * max(1.0, abs(x), abs(origin)) else 0.0
     smooth = is_smooth(step, rounding)
-    tol = cut_tolerance(x, origin, step)
+    tol = cut_tolerance(x, origin, origin + (m - 1) * step, step)
     u = (x - origin) / step
     if not smooth or m == 2:
         c = math.ceil(u - tol)

@@ -26,7 +26,7 @@ import math
 import numpy as np
 from numba import njit
 
-from .lattice import EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, plan_group
+from .lattice import EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, exact_budget, plan_group
 from .order import activate
 from .scenarios import SNAP_BINS, snap_fill
 
@@ -199,8 +199,9 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         if a1 == a0:
             status[g] = EMPTY
             continue
-        m, shift = activate(amount[a0:a1], prob[a0:a1], flip, act_amount[a0:a1],
-                            act_prob[a0:a1])
+        m, certain, flipped = activate(amount[a0:a1], prob[a0:a1], flip, act_amount[a0:a1],
+                                       act_prob[a0:a1])
+        shift = certain + flipped
         m += a0
         act_stop[g] = m
         if m == a0:
@@ -214,10 +215,15 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
             act_amount[a0:m], act_prob[a0:m], step_req[g], bins,
             act_offset[a0:m], act_frac[a0:m],
         )
-        if st == OK and not ex and m - a0 <= scenario_max:
+        # a small group is exact on a lattice only within the exact budget: a wider exact
+        # lattice (the automatic step may take the unit for up to AUTO_MAX_BINS bins) costs
+        # more than its scenarios, and a stored outcome of megabytes
+        cheap = ex and (step_req[g] > 0 or count <= exact_budget(m - a0, bins))
+        if st == OK and not cheap and m - a0 <= scenario_max:
             status[g] = SCENARIOS
             continue
-        if st == OK and not ex and m - a0 <= snap_max and (step_req[g] <= 0 or snap_explicit[g]):
+        automatic = step_req[g] <= 0 or snap_explicit[g]
+        if st == OK and not cheap and m - a0 <= snap_max and automatic:
             st, snap_origin[g], h, count = _snap_plan(act_amount[a0:m], step_req[g])
             snapped[g] = True
             status[g] = st
@@ -233,7 +239,13 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         linear[g] = lin
         lo[g] = first
         size[g] = count if st == OK else 0
-        origin[g] = shift + first * h
+        if ex:
+            # every flipped amount is a whole number of steps: add them up as steps, so
+            # "won for certain, less a possible loss" does not leave float noise where
+            # the true lowest total is (0 less a few ulps of the amounts)
+            origin[g] = certain + (first + math.floor(flipped / h + 0.5)) * h
+        else:
+            origin[g] = shift + first * h
 
     mass_offsets = np.zeros(n_groups + 1, np.int64)
     for g in range(n_groups):

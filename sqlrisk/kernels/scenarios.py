@@ -50,7 +50,7 @@ def active_deals(amount, prob):
     """The uncertain deals (0 < p < 1, a != 0) in canonical order, and the certain total."""
     a = np.empty(len(amount))
     p = np.empty(len(amount))
-    m, shift = activate(amount, prob, False, a, p)
+    m, shift, _flipped = activate(amount, prob, False, a, p)
     return a[:m], p[:m], shift
 
 
@@ -129,9 +129,10 @@ def _smallest_above(x, y, v):
 
 
 @njit(cache=True, nogil=True)
-def tolerance(c, lowest):
-    """``readout.cut_tolerance`` in money: a total this close to ``c`` counts as reaching it."""
-    return CUT_REL * max(1.0, abs(c), abs(lowest))
+def tolerance(c, lowest, highest):
+    """``readout.cut_tolerance`` in money: a total this close to ``c`` counts as reaching it
+    (relative to the cut and the group's extreme totals ``lowest`` and ``highest``)."""
+    return CUT_REL * max(1.0, abs(c), abs(lowest), abs(highest))
 
 
 @njit(cache=True, nogil=True)
@@ -141,7 +142,7 @@ def quantile(x, px, y, cy, shift, q):
     gives the smallest total, even when its probability is too small for a double."""
     lo = x[0] + y[0]
     hi = x[-1] + y[-1]
-    tol = tolerance(shift + hi, shift + lo)
+    tol = tolerance(shift + hi, shift + lo, shift + hi)
     target = q - Q_TOL
     if target <= 0.0 or at_most(x, px, y, cy, shift + lo, shift, tol) >= target:
         return shift + lo
@@ -168,10 +169,11 @@ def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
                                    prob[offsets[g]:offsets[g + 1]])
         x, px, y, py, cy = halves(a, p)
         lowest = shift + x[0] + y[0]
+        highest = shift + x[-1] + y[-1]
         at = np.empty(cut_offsets[n + 1] - cut_offsets[n])
         for c in range(len(at)):
             cut = cuts[cut_offsets[n] + c]
-            at[c] = below(x, px, y, cy, cut, shift, tolerance(cut, lowest))
+            at[c] = below(x, px, y, cy, cut, shift, tolerance(cut, lowest, highest))
         pos = write_bands(at, 1.0, out, pos)
     return out
 
@@ -194,9 +196,11 @@ def below_many(a, p, shift, values):
     """P(S < v) for each ``v`` (a group's uncertain deals ``a, p`` and certain total ``shift``)."""
     x, px, y, py, cy = halves(a, p)
     lowest = shift + x[0] + y[0]
+    highest = shift + x[-1] + y[-1]
     out = np.empty(len(values))
     for i in range(len(values)):
-        out[i] = min(below(x, px, y, cy, values[i], shift, tolerance(values[i], lowest)), 1.0)
+        tol = tolerance(values[i], lowest, highest)
+        out[i] = min(below(x, px, y, cy, values[i], shift, tol), 1.0)
     return out
 
 
@@ -215,9 +219,10 @@ def swing_below(a, p, shift, target):
                 k += 1
         x, px, y, py, cy = halves(a[keep], p[keep])
         lowest = shift + x[0] + y[0]
+        highest = shift + x[-1] + y[-1]
         for col in range(2):
             v = target - a[i] if col == 0 else target
-            out[i, col] = min(below(x, px, y, cy, v, shift, tolerance(v, lowest)), 1.0)
+            out[i, col] = min(below(x, px, y, cy, v, shift, tolerance(v, lowest, highest)), 1.0)
     return out
 
 

@@ -50,7 +50,7 @@ def _below(arr, a0, below, x, shift, step, smooth, g_lo, g_hi):
     (indices ``a0 ...``) under ``x``, read as points, or as bins on an inexact lattice
     (the extreme totals ``g_lo`` and ``g_hi`` stay points), with the readout's tolerance."""
     u = (x - shift) / step
-    tol = cut_tolerance(x, shift, step)
+    tol = cut_tolerance(x, shift + g_lo * step, shift + g_hi * step, step)
     total = below
     if not smooth or g_hi - g_lo <= 1:
         first_at_or_above = math.ceil(u - tol)
