@@ -48,9 +48,9 @@ DEFAULT_BINS = 1024
 #: An exact lattice keeps every atom of the total (such as "this one large deal
 #: is won") where it is, so it may use more bins than an inexact one: up to
 #: EXACT_WORK / n bins for n uncertain deals (the recursion's work is about
-#: deals x bins: 4M multiply-adds, about a millisecond), and at most
+#: deals x bins: 1M multiply-adds, about a quarter of a millisecond), and at most
 #: EXACT_MAX_BINS (512 KB of mass per outcome).
-EXACT_WORK = 1 << 22
+EXACT_WORK = 1 << 20
 EXACT_MAX_BINS = 1 << 16
 #: An inexact lattice of a smaller group may also use more bins for the same
 #: work: up to INEXACT_WORK / n (groups of 100 deals or more keep the bin

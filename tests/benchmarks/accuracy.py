@@ -1,6 +1,7 @@
 """Band accuracy by group size and amount unit, against exact distributions.
 
     python -m tests.benchmarks.accuracy [--groups 100] [--sizes 3,5,8] [--units cents,tens]
+                                        [--scenario-max 12]
 
 For each group size and unit, random groups (amounts log-normal around 13,000,
 rounded to the unit, one deal in ten a credit note; win probabilities uniform in
@@ -162,7 +163,14 @@ def main() -> None:
     parser.add_argument("--sizes", default=",".join(map(str, SIZES)))
     parser.add_argument("--units", default=",".join(UNITS))
     parser.add_argument("--seed", type=int, default=11)
+    parser.add_argument("--scenario-max", type=int, default=None,
+                        help="answer groups of at most this many uncertain deals from their "
+                             "scenarios (default: sqlrisk's own threshold), to measure the "
+                             "lattice where the scenarios would otherwise answer")
     args = parser.parse_args()
+    if args.scenario_max is not None:
+        from sqlrisk.kernels import scenarios
+        scenarios.MAX_DEALS = args.scenario_max
     print(f"Largest band error over {args.groups} random groups per cell "
           "(band_odds / outcome_bands(outcome_dist(...)))\n")
     units = args.units.split(",")
