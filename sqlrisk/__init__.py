@@ -7,13 +7,15 @@
 """
 
 from .errors import InputDataError, ParameterError, QueryLookupError, SqlriskError
-from .registry import OUTCOME_SQL, connect, register
+from .adapters.registry import connect, register, register_macros
+from .adapters.sql_types import OUTCOME_SQL
 
 __version__ = "0.1.0"
 
 __all__ = [
     "connect",
     "register",
+    "register_macros",
     "OUTCOME_SQL",
     "SqlriskError",
     "InputDataError",

@@ -14,10 +14,9 @@ import duckdb
 import typer
 
 from . import demo as demo_module
-from . import output, queries, runner
-from . import charting
+from . import chart_rows, queries, result_writer, runner
+from .adapters.registry import connect
 from .errors import SqlriskError
-from .registry import connect
 
 app = typer.Typer(
     help="Exact and simulated odds for a sales pipeline's won total, in DuckDB SQL.",
@@ -120,8 +119,8 @@ def run(
     """
     if replace_rows is not None and into is None:
         raise typer.BadParameter("--replace-rows needs --into TABLE", param_hint="--replace-rows")
-    if fmt not in output.FORMATS:
-        raise typer.BadParameter(f"{fmt!r} is not one of {', '.join(output.FORMATS)}",
+    if fmt not in result_writer.FORMATS:
+        raise typer.BadParameter(f"{fmt!r} is not one of {', '.join(result_writer.FORMATS)}",
                                  param_hint="--format")
     try:
         saved = queries.find(query)
@@ -137,7 +136,7 @@ def run(
         if result.into is not None and out is None and fmt == "table":
             typer.echo(f"wrote {result.written} rows into {result.into}")
             return
-        output.write(result.table, fmt, out)
+        result_writer.write(result.table, fmt, out)
     except (SqlriskError, duckdb.Error) as exc:
         fail(clean_error(exc))
 
@@ -183,7 +182,7 @@ def chart(
         try:
             result = runner.run_query(con, queries.find(query),
                                       runner.split_pairs(param, "--param"))
-            written = charting.draw_rows(con, result.table, out, where=where, cuts=cut_values)
+            written = chart_rows.draw_rows(con, result.table, out, where=where, cuts=cut_values)
         finally:
             con.close()
         for path in written:

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import duckdb
 
-from . import charting, queries, render, runner
+from . import chart_rows, queries, runner, text_format
 
 SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals")
 BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more",
@@ -40,11 +40,12 @@ def _section(con, name: str, title: str, columns: list[str] | None = None,
         keep = [headers.index(c) for c in columns]
         headers = columns
         rows = [[r[i] for i in keep] for r in rows]
-    formats = {c: render.pct for c in BAND_COLUMNS}
-    formats.update({c: render.money for c in MONEY_COLUMNS})
+    formats = {c: text_format.pct for c in BAND_COLUMNS}
+    formats.update({c: text_format.money for c in MONEY_COLUMNS})
     source = query.path.relative_to(queries.PACKAGE_ROOT) if query.path.is_relative_to(
         queries.PACKAGE_ROOT) else query.path
-    return f"{title}\n(from {source}: {query.description})\n\n" + render.table(headers, rows, formats)
+    return (f"{title}\n(from {source}: {query.description})\n\n"
+            + text_format.table(headers, rows, formats))
 
 
 CHART_REGION = "Tidewater Bay"
@@ -57,15 +58,15 @@ def write_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
     query = queries.find("region_outcomes")
     result = runner.run_query(con, query, {})
     path = out_dir / "demo-region-chart.svg"
-    return charting.draw_rows(con, result.table, path,
-                              where=f"region = '{CHART_REGION}'")[0]
+    return chart_rows.draw_rows(con, result.table, path,
+                                where=f"region = '{CHART_REGION}'")[0]
 
 
 def write_reliability_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
     """Reliability diagram of the closed deals' stated probabilities (sql/reliability_table.sql)."""
     out_dir.mkdir(parents=True, exist_ok=True)
     result = runner.run_query(con, queries.find("reliability_table"), {})
-    return charting.draw_rows(con, result.table, out_dir / "demo-reliability.svg")[0]
+    return chart_rows.draw_rows(con, result.table, out_dir / "demo-reliability.svg")[0]
 
 
 def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str:

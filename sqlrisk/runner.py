@@ -16,7 +16,7 @@ import pyarrow as pa
 
 from . import queries
 from .errors import InputDataError, ParameterError, QueryLookupError, SqlriskError
-from .registry import connect
+from .adapters.registry import connect
 
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
 _FORMATS = {".parquet": "read_parquet", ".pq": "read_parquet", ".csv": "read_csv",

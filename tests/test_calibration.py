@@ -26,7 +26,7 @@ from hypothesis import strategies as st
 from conftest import ROOT
 from sqlrisk import queries, runner
 from sqlrisk.kernels import calibration as kernel
-from sqlrisk.calibration import MAP_SQL, PARTS_SQL
+from sqlrisk.adapters.sql_types import MAP_SQL, PARTS_SQL
 from sqlrisk.cli import app
 
 TOL = 1e-12

@@ -15,7 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from .lattice import _window as window
+from .lattice import tail_window as window
 from .lattice import common_unit
 from .readout import is_smooth
 from .spectral import fft_convolve
@@ -64,11 +64,11 @@ def respread(o: Outcome, step: float) -> tuple[Outcome, float]:
     size = low[-1] + 2
     mass = (np.bincount(low, o.mass * (1.0 - frac), minlength=size)
             + np.bincount(low + 1, o.mass * frac, minlength=size))
-    first, last = _nonzero_span(mass)
+    first, last = nonzero_span(mass)
     return Outcome(o.origin + first * step, step, mass[first:last], o.trials, o.rounding), step
 
 
-def _nonzero_span(mass: np.ndarray) -> tuple[int, int]:
+def nonzero_span(mass: np.ndarray) -> tuple[int, int]:
     """``first, last`` such that ``mass[first:last]`` holds every non-zero bin."""
     nz = np.flatnonzero(mass)
     return (int(nz[0]), int(nz[-1]) + 1) if len(nz) else (0, 1)
@@ -99,7 +99,7 @@ def _trim_tails(o: Outcome) -> Outcome:
     return Outcome(o.origin + first * o.step, o.step, mass[first:last], o.trials, o.rounding)
 
 
-def _common_step(steps: list[float], spread: float) -> tuple[float, bool]:
+def common_step(steps: list[float], spread: float) -> tuple[float, bool]:
     """The step all lattices go onto, and whether that is exact (no splitting).
 
     Exact when every step is a whole multiple of one unit (the finest step, or
@@ -117,7 +117,7 @@ def _common_step(steps: list[float], spread: float) -> tuple[float, bool]:
 
 
 def _spread(lattices: list[Outcome]) -> float:
-    """Width that holds all but ~1e-16 a side of the sum's mass (``lattice._window``)."""
+    """Width that holds all but ~1e-16 a side of the sum's mass (``lattice.tail_window``)."""
     mean = var = dev = lo = hi = 0.0
     for o in lattices:
         x = o.origin + o.step * np.arange(len(o.mass))
@@ -156,7 +156,7 @@ def combine(outcomes: list[Outcome]) -> Outcome:
     if not lattices:
         steps = [o.step for o in outcomes]
         return Outcome(shift, max(steps), np.ones(1), sim_trials, rounding)
-    step, _ = _common_step([o.step for o in lattices], _spread(lattices))
+    step, _ = common_step([o.step for o in lattices], _spread(lattices))
     parts = []
     for o in lattices:
         moved, added = respread(o, step)

@@ -129,7 +129,7 @@ def inexact_budget(n, bins):
 
 
 @njit(cache=True, nogil=True)
-def _window(mean, var, largest, lo, hi):
+def tail_window(mean, var, largest, lo, hi):
     """Totals outside ``[mean - t, mean + t]`` have mass below TAIL per side."""
     lm = LOG_TAIL * largest / 3.0
     t = lm + math.sqrt(lm * lm + 2.0 * LOG_TAIL * var)
@@ -199,7 +199,7 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
             lo_sum += a
         else:
             hi_sum += a
-    w_lo, w_hi = _window(mean, var, largest, lo_sum, hi_sum)
+    w_lo, w_hi = tail_window(mean, var, largest, lo_sum, hi_sum)
     width = w_hi - w_lo
 
     exact = False
@@ -252,7 +252,7 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
     rounding = 0.0 if exact else step * (max(sum_f, sum_g) + 0.5)
 
     full = k_hi - k_lo + 1
-    l_lo, l_hi = _window(mean, max(lat_var, 0.0), lat_largest, k_lo * step, k_hi * step)
+    l_lo, l_hi = tail_window(mean, max(lat_var, 0.0), lat_largest, k_lo * step, k_hi * step)
     lo = np.int64(math.floor(l_lo / step)) - 1
     hi = np.int64(math.ceil(l_hi / step)) + 1
     size = hi - lo + 1

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
-from .lattice import _window as window
+from .lattice import tail_window as window
 from .order import canonical_order
 from .pooled import merge_leaves
 from .recursion import exact_batch

@@ -3,7 +3,7 @@
 A large group is computed as leaves of a few hundred deals each (see
 ``outcome._pooled``); this module adds the leaves up. Every leaf is cut to the
 bins that matter (tails holding at most DROP of mass go, and so does anything
-outside its Bernstein window, ``lattice._window``, which ignores the transform
+outside its Bernstein window, ``lattice.tail_window``, which ignores the transform
 noise that mass sums would count) and moved onto one
 common step, splitting each point's mass between its two neighbours so the
 mean is kept. The leaves are then convolved pairwise in a balanced tree. A
@@ -26,8 +26,8 @@ import math
 import numpy as np
 from numba import njit
 
-from .combine import _common_step, _nonzero_span
-from .lattice import _window as window
+from .combine import common_step, nonzero_span
+from .lattice import tail_window as window
 
 #: Complex numbers one batched transform may hold (64 MiB).
 FFT_BUDGET = 1 << 22
@@ -140,7 +140,7 @@ def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, work
     if step_fixed > 0:
         h, exact = step_fixed, True
     else:
-        h, exact = _common_step(list(np.unique(step[spread])), width)
+        h, exact = common_step(list(np.unique(step[spread])), width)
     if not exact:
         coarse = math.sqrt(4.0 * MOVE_VARIANCE * var.sum() / spread.sum())
         h = max(h, min(coarse, width / MIN_BINS))
@@ -155,7 +155,7 @@ def merge_leaves(origin, step, mass, offsets, rounding, mean, var, largest, work
         rows, row_origin, mean, var, largest = _level(rows, row_origin, h, mean, var, largest,
                                                       workers)
     out = rows[0]
-    lo, hi = _nonzero_span(out)
+    lo, hi = nonzero_span(out)
     out = out[lo:hi]
     return float(row_origin[0] + lo * h), h, out / out.sum(), total_rounding
 

@@ -3,7 +3,7 @@
 Convolution modulo ``size`` is exact arithmetic on the residues of the total:
 folding every chunk modulo the window size and multiplying their transforms
 gives the distribution of ``total mod size``. Because the window was chosen to
-hold all but ``2 * TAIL`` of the mass (``lattice._window``), reading residue
+hold all but ``2 * TAIL`` of the mass (``lattice.tail_window``), reading residue
 ``j`` as the total ``lo + j`` is wrong by at most that mass. The same idea
 combines stored outcomes in ``combine.py``.
 """

@@ -14,6 +14,7 @@ import subprocess
 import sys
 import time
 
+import duckdb
 import numpy as np
 import pyarrow as pa
 
@@ -40,8 +41,8 @@ def _noop(rows):
 def connect():
     con = sqlrisk.connect()
     con.create_function("bench_noop", _noop,
-                        [sqlrisk.registry._t("STRUCT(a DOUBLE, p DOUBLE, c DOUBLE[])[]")],
-                        sqlrisk.registry._t("DOUBLE"), type="arrow")
+                        [duckdb.sqltype("STRUCT(a DOUBLE, p DOUBLE, c DOUBLE[])[]")],
+                        duckdb.sqltype("DOUBLE"), type="arrow")
     return con
 
 

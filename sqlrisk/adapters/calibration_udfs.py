@@ -1,7 +1,7 @@
 """The calibration functions in SQL: Arrow in, checks, kernel call, Arrow out.
 
 ``calibration_map``, ``brier_score`` and ``brier_parts`` are aggregates (TEMP
-macros in ``registry`` packing a group's closed deals into one
+macros from ``catalog`` packing a group's closed deals into one
 ``LIST(STRUCT(p DOUBLE, w DOUBLE))``); ``apply_calibration`` is a scalar.
 
 A calibration map is ``STRUCT(prob DOUBLE[], rate DOUBLE[], deals BIGINT)``:
@@ -16,23 +16,19 @@ from __future__ import annotations
 import numpy as np
 import pyarrow as pa
 
-from . import arrowio as io
-from .errors import InputDataError, ParameterError
-from .functions import _ragged_subset
-from .kernels import calibration as kernel
+from ..errors import InputDataError, ParameterError
+from ..kernels import calibration as kernel
+from . import arrow_io
+from .readers import ragged_subset
+from .sql_types import MAP_FIELDS, MAP_SQL, PARTS_FIELDS
 
-MAP_FIELDS = ("prob", "rate", "deals")
-MAP_SQL = "STRUCT(prob DOUBLE[], rate DOUBLE[], deals BIGINT)"
-PARTS_FIELDS = ("reliability", "resolution", "uncertainty")
-PARTS_SQL = "STRUCT(reliability DOUBLE, resolution DOUBLE, uncertainty DOUBLE)"
-CLOSED_SQL = "STRUCT(p DOUBLE, w DOUBLE)[]"
 #: Most stated-probability bins ``brier_parts`` takes.
 MAX_BINS = 1000
 
 
 def _number(x: float) -> str:
     """2 rather than 2.0 for a whole number; repr otherwise."""
-    return str(int(x)) if np.isfinite(x) and x == np.floor(x) else io._fmt(x)
+    return str(int(x)) if np.isfinite(x) and x == np.floor(x) else arrow_io.fmt(x)
 
 
 def _closed_deals(fn: str, rows):
@@ -41,13 +37,10 @@ def _closed_deals(fn: str, rows):
     Returns probabilities, outcomes (0.0/1.0), group offsets and the mask of
     groups that have at least one usable deal.
     """
-    groups = io.read_groups(rows)
-    prob, p_null = io._floats(groups.field("p"))
-    won, w_null = io._floats(groups.field("w"))
-    keep = ~(p_null | w_null)
-    offsets = np.concatenate([[0], np.cumsum(keep)])[groups.offsets]
+    groups = arrow_io.read_groups(rows)
+    (prob, won), _, keep, offsets = arrow_io.usable_rows(groups, "prob", "won")
     prob, won = prob[keep], won[keep]
-    io.check_probabilities(fn, prob)
+    arrow_io.check_probabilities(fn, prob)
     bad = (won != 0.0) & (won != 1.0)
     if bad.any():
         raise InputDataError(f"{fn}: won {_number(won[bad][0])} is not 0/1 or true/false (give 1 "
@@ -62,21 +55,21 @@ def calibration_map(rows):
     fn = "calibration_map"
     prob, won, offsets, valid = _closed_deals(fn, rows)
     breaks, rates, map_offsets, deals = kernel.fit_maps(prob, won, offsets)
-    arrays = [io.lists_to_arrow(breaks, map_offsets, valid),
-              io.lists_to_arrow(rates, map_offsets, valid),
+    arrays = [arrow_io.lists_to_arrow(breaks, map_offsets, valid),
+              arrow_io.lists_to_arrow(rates, map_offsets, valid),
               pa.array(deals, type=pa.int64())]
     return pa.StructArray.from_arrays(arrays, names=list(MAP_FIELDS), mask=pa.array(~valid))
 
 
 def brier_score(rows):
     prob, won, offsets, valid = _closed_deals("brier_score", rows)
-    return io.doubles_to_arrow(kernel.brier_scores(prob, won, offsets), valid)
+    return arrow_io.doubles_to_arrow(kernel.brier_scores(prob, won, offsets), valid)
 
 
 def brier_parts(rows, bins):
     fn = "brier_parts"
     prob, won, offsets, valid = _closed_deals(fn, rows)
-    counts, nulls = io._floats(io._array(bins))
+    counts, nulls = arrow_io.floats(arrow_io.as_array(bins))
     bad = ~nulls & ~((counts >= 1) & (counts <= MAX_BINS) & (counts == np.floor(counts)))
     if bad.any():
         raise ParameterError(f"{fn}: bins {_number(counts[bad][0])} is not a whole number in "
@@ -84,7 +77,7 @@ def brier_parts(rows, bins):
                              "few hundred deals)")
     valid &= ~nulls
     rel, res, unc = kernel.brier_parts(prob, won, offsets, np.where(nulls, 1, counts))
-    arrays = [io.doubles_to_arrow(part, valid) for part in (rel, res, unc)]
+    arrays = [arrow_io.doubles_to_arrow(part, valid) for part in (rel, res, unc)]
     return pa.StructArray.from_arrays(arrays, names=list(PARTS_FIELDS), mask=pa.array(~valid))
 
 
@@ -102,7 +95,7 @@ def _shown(values: np.ndarray) -> str:
 
 def read_maps(fn: str, values):
     """A column of maps, checked: breakpoints, rates, their offsets and the valid rows."""
-    arr = io._array(values)
+    arr = arrow_io.as_array(values)
     n = len(arr)
     valid = ~np.asarray(arr.is_null(), dtype=bool)
     cols = {}
@@ -110,7 +103,7 @@ def read_maps(fn: str, values):
         child = arr.field(name)
         if (np.asarray(child.is_null(), dtype=bool) & valid).any():
             raise _malformed(fn, f"{name} is NULL")
-        flat, offsets, _ = io.list_column(child, n, f"{fn}: malformed map: {name} contains a "
+        flat, offsets, _ = arrow_io.list_column(child, n, f"{fn}: malformed map: {name} contains a "
                                           "NULL; pass a map built by calibration_map")
         cols[name] = (flat, offsets)
     (breaks, offsets), (rates, rate_offsets) = cols["prob"], cols["rate"]
@@ -125,7 +118,7 @@ def read_maps(fn: str, values):
     for name, flat in (("breakpoint", breaks), ("rate", rates)):
         outside = live & ~((flat >= 0.0) & (flat <= 1.0))
         if outside.any():
-            raise _malformed(fn, f"{name} {io._fmt(flat[np.flatnonzero(outside)[0]])} is outside "
+            raise _malformed(fn, f"{name} {arrow_io.fmt(flat[np.flatnonzero(outside)[0]])} is outside "
                                  "[0, 1]")
     steps = (np.diff(breaks) <= 0) & live[1:]
     bounds = offsets[1:-1]
@@ -140,12 +133,12 @@ def read_maps(fn: str, values):
 def apply_calibration(maps, prob):
     fn = "apply_calibration"
     breaks, rates, offsets, valid = read_maps(fn, maps)
-    values, nulls = io._floats(io._array(prob))
-    io.check_probabilities(fn, values[~nulls])
+    values, nulls = arrow_io.floats(arrow_io.as_array(prob))
+    arrow_io.check_probabilities(fn, values[~nulls])
     keep = valid & ~nulls
     out = np.full(len(keep), np.nan)
     if keep.any():
-        sub_breaks, sub_offsets = _ragged_subset(breaks, offsets, keep)
-        sub_rates, _ = _ragged_subset(rates, offsets, keep)
+        sub_breaks, sub_offsets = ragged_subset(breaks, offsets, keep)
+        sub_rates, _ = ragged_subset(rates, offsets, keep)
         out[keep] = kernel.interpolate(sub_breaks, sub_rates, sub_offsets, values[keep])
-    return io.doubles_to_arrow(out, keep)
+    return arrow_io.doubles_to_arrow(out, keep)

@@ -14,11 +14,11 @@ from dataclasses import dataclass
 import numpy as np
 import pyarrow as pa
 
-from .errors import InputDataError, ParameterError
-from .kernels.outcome import OutcomeBatch
-from .kernels.ragged import lists_agree
+from ..errors import InputDataError, ParameterError
+from ..kernels.outcome import OutcomeBatch
+from ..kernels.ragged import lists_agree
+from .sql_types import OUTCOME_FIELDS
 
-OUTCOME_FIELDS = ("origin", "step", "mass", "trials", "rounding")
 MASS_TOL = 1e-9
 #: Largest and smallest non-zero deal amount (in absolute value) the functions accept.
 AMOUNT_MAX = 1e15
@@ -27,20 +27,22 @@ AMOUNT_MIN = 1e-9
 OUTCOME_MAX = 1e150
 
 
-def _array(values) -> pa.Array:
+def as_array(values) -> pa.Array:
+    """One Arrow array from what DuckDB hands a UDF (a ChunkedArray or an Array)."""
     if isinstance(values, pa.ChunkedArray):
         return values.combine_chunks() if values.num_chunks != 1 else values.chunk(0)
     return values
 
 
-def _floats(arr: pa.Array) -> tuple[np.ndarray, np.ndarray]:
+def floats(arr: pa.Array) -> tuple[np.ndarray, np.ndarray]:
     """Values as float64 (NULL -> NaN) and the NULL mask."""
     nulls = np.asarray(arr.is_null(), dtype=bool)
     values = arr.to_numpy(zero_copy_only=False).astype(np.float64, copy=False)
     return values, nulls
 
 
-def _fmt(x: float) -> str:
+def fmt(x: float) -> str:
+    """A value as error messages quote it."""
     return repr(float(x))
 
 
@@ -61,7 +63,7 @@ class Groups:
 
 def read_groups(rows) -> Groups:
     """Split a ``LIST(STRUCT(...))`` column into flat fields plus offsets."""
-    arr = _array(rows)
+    arr = as_array(rows)
     offsets = np.asarray(arr.offsets, dtype=np.int64)
     start = offsets[0]
     stop = offsets[-1]
@@ -81,7 +83,7 @@ def check_probabilities(fn: str, prob: np.ndarray) -> None:
     hint = "use values in [0, 1]"
     if np.isfinite(value) and len(finite) and finite.min() >= 0 and finite.max() <= 100:
         hint = "were percentages given? divide by 100"
-    raise InputDataError(f"{fn}: probability {_fmt(value)} is outside [0, 1] ({hint})")
+    raise InputDataError(f"{fn}: probability {fmt(value)} is outside [0, 1] ({hint})")
 
 
 def check_amounts(fn: str, amount: np.ndarray, what: str = "amount") -> None:
@@ -94,33 +96,39 @@ def check_amounts(fn: str, amount: np.ndarray, what: str = "amount") -> None:
     if bad.any():
         value = amount[np.flatnonzero(bad)[0]]
         raise InputDataError(
-            f"{fn}: {what} {_fmt(value)} is not a finite number "
+            f"{fn}: {what} {fmt(value)} is not a finite number "
             "(filter it out or COALESCE it to a real amount)")
     size = np.abs(amount)
     big = size > AMOUNT_MAX
     if big.any():
         raise InputDataError(
-            f"{fn}: {what} {_fmt(amount[np.flatnonzero(big)[0]])} is beyond +/-{AMOUNT_MAX:.0e} "
+            f"{fn}: {what} {fmt(amount[np.flatnonzero(big)[0]])} is beyond +/-{AMOUNT_MAX:.0e} "
             "(a unit mix-up? give amounts in a larger unit, such as thousands)")
     small = (size > 0) & (size < AMOUNT_MIN)
     if small.any():
         raise InputDataError(
-            f"{fn}: {what} {_fmt(amount[np.flatnonzero(small)[0]])} is smaller than {AMOUNT_MIN:.0e} "
+            f"{fn}: {what} {fmt(amount[np.flatnonzero(small)[0]])} is smaller than {AMOUNT_MIN:.0e} "
             "but not 0 (round such residues to 0, or give amounts in a smaller unit)")
+
+
+def usable_rows(groups: Groups, *names: str):
+    """The NULL rule: a row with a NULL in any of the fields ``names`` is skipped.
+
+    Returns the fields' values (float64) and NULL masks, the mask of usable rows
+    and the groups' offsets into the usable rows.
+    """
+    values, null_masks = zip(*(floats(groups.field(name)) for name in names))
+    keep = ~np.logical_or.reduce(null_masks)
+    offsets = (groups.offsets if keep.all()
+               else np.concatenate([[0], np.cumsum(keep)])[groups.offsets])
+    return list(values), list(null_masks), keep, offsets
 
 
 def deals(fn: str, groups: Groups) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Usable deals (NULL amount or probability skipped), checked, with new offsets."""
-    amount, a_null = _floats(groups.field("a"))
-    prob, p_null = _floats(groups.field("p"))
-    keep = ~(a_null | p_null)
+    (amount, prob), _, keep, offsets = usable_rows(groups, "amount", "prob")
     if not keep.all():
-        kept = np.concatenate([[0], np.cumsum(keep)])
-        offsets = kept[groups.offsets]
-        amount = amount[keep]
-        prob = prob[keep]
-    else:
-        offsets = groups.offsets
+        amount, prob = amount[keep], prob[keep]
     check_amounts(fn, amount)
     check_probabilities(fn, prob)
     return amount, prob, offsets
@@ -129,7 +137,7 @@ def deals(fn: str, groups: Groups) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 def check_cuts(fn: str, cuts: np.ndarray, offsets: np.ndarray, what: str = "cuts") -> None:
     if not np.isfinite(cuts).all():
         value = cuts[np.flatnonzero(~np.isfinite(cuts))[0]]
-        raise ParameterError(f"{fn}: {what} contain {_fmt(value)}; give finite totals")
+        raise ParameterError(f"{fn}: {what} contain {fmt(value)}; give finite totals")
     steps = np.diff(cuts)
     inner = np.ones(len(steps), dtype=bool)
     inner[offsets[1:-1] - 1] = False  # ignore the step between two rows
@@ -144,12 +152,27 @@ def check_cuts(fn: str, cuts: np.ndarray, offsets: np.ndarray, what: str = "cuts
 
 def steps_requested(fn: str, values) -> np.ndarray:
     """A ``step`` column: NULL -> 0 (automatic lattice); anything not > 0 is an error."""
-    step, nulls = _floats(_array(values))
+    step, nulls = floats(as_array(values))
     bad = ~nulls & ~(step > 0)
     if bad.any():
-        raise ParameterError(f"{fn}: step {_fmt(step[bad][0])} must be > 0 "
+        raise ParameterError(f"{fn}: step {fmt(step[bad][0])} must be > 0 "
                              "(or NULL for the automatic lattice)")
     return np.where(nulls, 0.0, step)
+
+
+def param_column(values, default: float, n: int) -> np.ndarray:
+    """A per-group numeric parameter (trials, correlation, level): NULL takes ``default``."""
+    vals, nulls = floats(as_array(values))
+    if len(vals) != n:
+        raise AssertionError("parameter column length mismatch")
+    return np.where(nulls, default, vals)
+
+
+def check_correlation(fn: str, rho: np.ndarray) -> None:
+    bad = ~((rho >= 0) & (rho < 1))
+    if bad.any():
+        raise ParameterError(f"{fn}: correlation {fmt(rho[bad][0])} is outside [0, 1) "
+                             "(0 = independent deals; 0.05 to 0.3 is typical)")
 
 
 def check_levels(fn: str, qs: np.ndarray) -> None:
@@ -158,7 +181,7 @@ def check_levels(fn: str, qs: np.ndarray) -> None:
         value = qs[np.flatnonzero(bad)[0]]
         hint = ("were percentiles given? divide by 100" if 1 < value <= 100
                 else "give levels such as 0.1, 0.5, 0.9")
-        raise ParameterError(f"{fn}: quantile level {_fmt(value)} is outside [0, 1] ({hint})")
+        raise ParameterError(f"{fn}: quantile level {fmt(value)} is outside [0, 1] ({hint})")
 
 
 def list_column(values, n: int, null_error: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -167,12 +190,12 @@ def list_column(values, n: int, null_error: str) -> tuple[np.ndarray, np.ndarray
     A NULL element inside a list raises ``null_error`` (a ParameterError, or an
     InputDataError when the text speaks of a malformed outcome).
     """
-    arr = _array(values)
+    arr = as_array(values)
     if len(arr) != n:
         raise AssertionError("list column length mismatch")
     offsets = np.asarray(arr.offsets, dtype=np.int64)
     flat = arr.values.slice(offsets[0], offsets[-1] - offsets[0])
-    flat_values, nulls = _floats(flat)
+    flat_values, nulls = floats(flat)
     if nulls.any():
         raise (InputDataError if "malformed" in null_error else ParameterError)(null_error)
     return flat_values, offsets - offsets[0], np.asarray(arr.is_null(), dtype=bool)
@@ -201,7 +224,7 @@ def per_group_list(fn: str, groups: Groups, name: str, what: str):
     pick = np.where(missing, 0, first)
     out_len = np.where(missing, 0, lengths[pick] if len(lengths) else 0)
     out_offsets = np.concatenate([[0], np.cumsum(out_len)]).astype(np.int64)
-    idx = _ranges(offsets[pick], out_len)
+    idx = ranges(offsets[pick], out_len)
     return values[idx], out_offsets, missing
 
 
@@ -216,7 +239,7 @@ def _first_live_row(nulls: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     return np.where(first >= n_rows, -1, first)
 
 
-def _ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
+def ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
     """Concatenation of ``arange(s, s + c)`` for every pair, vectorised."""
     total = int(counts.sum())
     if total == 0:
@@ -228,7 +251,7 @@ def _ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
 
 def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
     """One value per group from a per-row scalar field (target)."""
-    values, nulls = _floats(groups.field(name))
+    values, nulls = floats(groups.field(name))
     first = _first_live_row(nulls, groups.offsets)
     missing = first < 0
     out = np.where(missing, np.nan, values[np.where(missing, 0, first)] if len(values) else np.nan)
@@ -239,11 +262,11 @@ def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
     if differ.any():
         i = live[np.flatnonzero(differ)[0]]
         raise ParameterError(
-            f"{fn}: {what} differs between rows of one group ({_fmt(out[row_group[i]])} and "
-            f"{_fmt(values[i])}); give one {what} per group")
+            f"{fn}: {what} differs between rows of one group ({fmt(out[row_group[i]])} and "
+            f"{fmt(values[i])}); give one {what} per group")
     bad = ~missing & ~np.isfinite(out)
     if bad.any():
-        raise ParameterError(f"{fn}: {what} {_fmt(out[np.flatnonzero(bad)[0]])} is not a finite "
+        raise ParameterError(f"{fn}: {what} {fmt(out[np.flatnonzero(bad)[0]])} is not a finite "
                              f"total (give a finite {what}, or NULL for a NULL answer)")
     return out, missing
 
@@ -252,12 +275,12 @@ def per_group_scalar(fn: str, groups: Groups, name: str, what: str):
 
 def read_outcomes(fn: str, values) -> OutcomeBatch:
     """A column of outcome structs, checked; NULL rows come back invalid."""
-    arr = _array(values)
+    arr = as_array(values)
     valid = ~np.asarray(arr.is_null(), dtype=bool)
     cols = {}
     for name in ("origin", "step", "rounding", "trials"):
         col = arr.field(name)
-        vals, nulls = _floats(col)
+        vals, nulls = floats(col)
         if (nulls & valid).any():
             raise InputDataError(
                 f"{fn}: an outcome has a NULL {name!r}; pass outcomes built by outcome_dist")
@@ -299,14 +322,14 @@ def check_outcomes(fn: str, b: OutcomeBatch) -> None:
                                  "pass outcomes built by outcome_dist")
     if len(b.mass) and not (b.mass >= 0).all():
         raise InputDataError(f"{fn}: malformed outcome: mass contains "
-                             f"{_fmt(b.mass[~(b.mass >= 0)][0])}; masses must be >= 0 (pass "
+                             f"{fmt(b.mass[~(b.mass >= 0)][0])}; masses must be >= 0 (pass "
                              "outcomes built by outcome_dist)")
     running = np.concatenate([[0.0], np.cumsum(b.mass)])
     sums = np.where(lengths > 0, running[b.offsets[1:]] - running[b.offsets[:-1]], 1.0)
     bad = v & (np.abs(sums - 1.0) > MASS_TOL)
     if bad.any():
         raise InputDataError(f"{fn}: malformed outcome: mass sums to "
-                             f"{_fmt(sums[np.flatnonzero(bad)[0]])}, not 1; pass outcomes built "
+                             f"{fmt(sums[np.flatnonzero(bad)[0]])}, not 1; pass outcomes built "
                              "by outcome_dist")
 
 

@@ -14,10 +14,9 @@ from pathlib import Path
 import duckdb
 import pyarrow as pa
 
-from . import chart
-from .arrowio import OUTCOME_FIELDS
+from . import chart_drawing as drawing
+from .adapters.sql_types import OUTCOME_FIELDS, OUTCOME_SQL
 from .errors import ParameterError
-from .registry import OUTCOME_SQL
 
 HISTOGRAM_BINS = 60
 ROWS = "__sqlrisk_chart_rows"
@@ -87,7 +86,7 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
         raise ParameterError("chart: no row to draw" + (f" matches --where {where!r}" if where else ""))
     written = []
     for i, (name, row_cuts, o, hist, bands, ci, mean) in enumerate(rows, start=1):
-        spec = chart.OutcomeChart(
+        spec = drawing.OutcomeChart(
             title=name or f"row {i}",
             bins=[(b["lo"], b["hi"], b["prob"]) for b in hist],
             cuts=list(row_cuts or []),
@@ -96,7 +95,7 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
             mean=mean,
             note=_note(o["rounding"], o["trials"]),
         )
-        written.append(_save(spec, _numbered(out, i, len(rows)), chart.to_svg, chart.to_png))
+        written.append(_save(spec, _numbered(out, i, len(rows)), drawing.to_svg, drawing.to_png))
     return written
 
 
@@ -164,7 +163,7 @@ def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
     for i, name in enumerate(labels, start=1):
         mine = [r for r in rows if r[0] == name]
         deals = sum(r[3] for r in mine)
-        spec = chart.ReliabilityChart(
+        spec = drawing.ReliabilityChart(
             title=name or "Stated win probability against observed win rate",
             points=[(r[1], r[2], r[3]) for r in mine],
             intervals=[(r[4], r[5]) for r in mine] if has_ci and all(
@@ -173,8 +172,8 @@ def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
                   + ("; whiskers: 95% Wilson intervals" if has_ci else "") + ".\n"
                   "Dashed line: observed = stated (a perfectly calibrated forecast)."),
         )
-        written.append(_save(spec, _numbered(out, i, len(labels)), chart.reliability_svg,
-                             chart.reliability_png))
+        written.append(_save(spec, _numbered(out, i, len(labels)), drawing.reliability_svg,
+                             drawing.reliability_png))
     return written
 
 

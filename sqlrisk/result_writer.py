@@ -13,7 +13,7 @@ from pathlib import Path
 import pyarrow as pa
 import pyarrow.parquet as pq
 
-from . import render
+from . import text_format
 from .errors import ParameterError
 
 FORMATS = ("table", "csv", "json", "parquet")
@@ -44,7 +44,7 @@ def to_text(table: pa.Table, fmt: str) -> str:
     rows = table.to_pylist()
     names = table.column_names
     if fmt == "table":
-        return render.table(names, [[r[n] for n in names] for r in rows])
+        return text_format.table(names, [[r[n] for n in names] for r in rows])
     if fmt == "csv":
         buffer = io.StringIO()
         writer = csv.writer(buffer, lineterminator="\n")

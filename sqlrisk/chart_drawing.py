@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from xml.sax.saxutils import escape
 
 from .errors import SqlriskError
-from .render import pct
+from .text_format import pct
 
 BAR = "#6c8ebf"
 CUT = "#2b2b2b"
