@@ -156,10 +156,20 @@ def place_deals(amount, prob, step, exact, units, unit_g, offset, frac):
 
 
 @njit(cache=True, nogil=True)
+def is_whole(x):
+    """Whether ``x`` is a whole number, within the relative tolerance MULTIPLE_TOL.
+
+    The one test of "is a multiple of the step" (``x = amount / step``) that every
+    lattice, sum and simulated outcome uses.
+    """
+    return abs(x - math.floor(x + 0.5)) <= MULTIPLE_TOL * max(1.0, abs(x))
+
+
+@njit(cache=True, nogil=True)
 def is_multiple(amount, step):
+    """Whether every amount is a whole multiple of ``step``."""
     for a in amount:
-        x = a / step
-        if abs(x - math.floor(x + 0.5)) > MULTIPLE_TOL * max(1.0, abs(x)):
+        if not is_whole(a / step):
             return False
     return True
 

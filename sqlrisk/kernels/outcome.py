@@ -17,10 +17,10 @@ import numpy as np
 from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
 from .lattice import tail_window as window
 from .order import canonical_order
-from .pooled import merge_leaves
 from .recursion import exact_batch
 from .scenarios import SNAP_DEALS
 from .spectral import fold_group
+from .sums import sum_outcomes
 
 #: Groups of at least this many deals are computed as pooled leaves (see ``_pooled``).
 POOL_MIN_DEALS = 4096
@@ -198,7 +198,7 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int, step: float = 0.0):
     times the amounts). Instead the deals, in canonical order, are dealt out
     round-robin into leaves, so every leaf has a similar mix of sizes and a
     similar step; each leaf gets its own automatic lattice (one batched kernel
-    call), and ``pooled.merge_leaves`` adds the leaves up. With an explicit
+    call), and ``sums.sum_outcomes`` adds the leaves up. With an explicit
     ``step`` every leaf, and the sum, use that step (the same lattice as one
     recursion over all the deals, without its cost). Returns
     ``(origin, step, mass, rounding)``, or None when an explicit step would need
@@ -222,8 +222,9 @@ def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int, step: float = 0.0):
     batch, status = _direct(a, p, leaf_offsets, np.full(leaves, max(step, 0.0)), bins)
     if (status == TOO_MANY_BINS).any():
         return None
-    return merge_leaves(batch.origin, batch.step, batch.mass, batch.offsets, batch.rounding,
-                        mean, var, largest, workers=THREADS, step_fixed=max(step, 0.0))
+    return sum_outcomes(batch.origin, batch.step, batch.mass, batch.offsets, batch.rounding,
+                        mean, var, largest, workers=THREADS, step_fixed=max(step, 0.0),
+                        coarsen=True)
 
 
 def _deal_out(order: np.ndarray, leaves: int) -> np.ndarray:

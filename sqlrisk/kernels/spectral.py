@@ -4,8 +4,7 @@ Convolution modulo ``size`` is exact arithmetic on the residues of the total:
 folding every chunk modulo the window size and multiplying their transforms
 gives the distribution of ``total mod size``. Because the window was chosen to
 hold all but ``2 * TAIL`` of the mass (``lattice.tail_window``), reading residue
-``j`` as the total ``lo + j`` is wrong by at most that mass. The same idea
-combines stored outcomes in ``combine.py``.
+``j`` as the total ``lo + j`` is wrong by at most that mass.
 """
 
 from __future__ import annotations
@@ -22,18 +21,6 @@ def chunk_width(size: int) -> int:
     """Support width of one chunk: narrow enough that the direct recursion is
     cheap, wide enough that few transforms are needed."""
     return max(64, size // 8)
-
-
-def fft_convolve(x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Linear convolution of two non-negative arrays through real FFTs (noise clipped at 0).
-
-    numpy's FFT rather than scipy.signal: importing scipy.signal costs about
-    1.5 s, which every command line call would pay.
-    """
-    n = len(x) + len(y) - 1
-    size = 1 << (n - 1).bit_length()
-    out = np.fft.irfft(np.fft.rfft(x, size) * np.fft.rfft(y, size), size)[:n]
-    return np.maximum(out, 0.0, out=out)
 
 
 def tidy(pmf: np.ndarray) -> np.ndarray:
