@@ -33,8 +33,7 @@ from numpy.polynomial.hermite_e import hermegauss
 from numpy.polynomial.legendre import leggauss
 from scipy.special import ndtr, ndtri
 
-from .lattice import (AUTO_MAX_BINS, DEFAULT_BINS, SPLIT_VARIANCE, common_unit, exact_budget,
-                      inexact_budget)
+from .lattice import DEFAULT_BINS, automatic_step, common_unit, group_moments
 from .outcome import OK, exact_outcomes, splice
 
 NODES = 64
@@ -175,14 +174,8 @@ def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, ba
         chance = p[offsets[g]:offsets[g + 1]]
         live = (chunk != 0) & (chance > 0) & (chance < 1)
         unit = common_unit(chunk[live])[0] if live.any() else 0.0
-        if unit > 0 and width / unit + 3 <= exact_budget(int(live.sum()), bins):
-            steps[g] = unit
-            continue
-        var = float(np.sum(chunk[live] ** 2 * chance[live] * (1 - chance[live])))
-        fine = math.sqrt(4.0 * SPLIT_VARIANCE * var / max(float(chance[live].sum()), 1e-300))
-        budget = inexact_budget(int(live.sum()), bins)
-        step = max(min(width / max(budget - 8, 1), fine), width / AUTO_MAX_BINS, 1e-300)
-        steps[g] = unit if unit > 0 and step < 2.0 * unit else step
+        _, var, wins, _, _, _, rest = group_moments(chunk[live], chance[live])
+        steps[g] = automatic_step(width, int(live.sum()), var, rest, wins, unit, bins)[0]
     return steps
 
 

@@ -175,15 +175,12 @@ def is_multiple(amount, step):
 
 
 @njit(cache=True, nogil=True)
-def plan_group(amount, prob, step_req, bins, offset, frac):
-    """Choose the lattice for one group of active deals (0 < p < 1, a != 0).
-
-    Fills ``offset``/``frac`` and returns
-    ``(status, step, exact, lo, size, linear, rounding)``: the lattice covers
-    indices ``lo .. lo + size - 1`` (total = index * step); ``linear`` is True
-    when that range holds every reachable total (no window cut), False when the
-    window cut the support and the total must be folded modulo ``size``.
-    """
+def group_moments(amount, prob):
+    """``mean, var, wins, largest, lo_sum, hi_sum, rest`` of a group of uncertain deals:
+    ``wins`` the expected number won, ``largest`` the largest ``|a|``, ``lo_sum`` and
+    ``hi_sum`` the negative and positive amounts' sums, and ``rest`` the variance
+    left once the RESOLVE_TOP deals of largest variance are fixed (``var`` when
+    nothing is left)."""
     n = len(amount)
     mean = 0.0
     var = 0.0
@@ -209,10 +206,47 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
             lo_sum += a
         else:
             hi_sum += a
+    rest = var - top[:RESOLVE_TOP].sum() if n > RESOLVE_TOP else 0.0
+    if rest <= 1e-12 * var:  # nothing left, up to float noise in the subtraction
+        rest = var
+    return mean, var, wins, largest, lo_sum, hi_sum, rest
+
+
+@njit(cache=True, nogil=True)
+def automatic_step(width, n, var, rest, wins, unit, bins):
+    """The automatic lattice's step for ``n`` uncertain deals whose totals span ``width``,
+    and whether it is exact: the amounts' ``unit`` (0 when they have none) when the
+    window fits the exact budget; otherwise the finest step that fits the inexact
+    budget, finer still so that splitting adds under SPLIT_VARIANCE of the variance
+    of the group and of its ``rest`` (a dominant deal's "won" and "lost" copies of
+    the rest are each as narrow as the rest), at most AUTO_MAX_BINS across; and
+    the unit after all when that step comes out under twice it (exactness for at
+    most twice the bins)."""
+    if unit > 0 and width / unit + 3 <= exact_budget(n, bins):
+        return unit, True
+    step = width / max(inexact_budget(n, bins) - 8, 1)
+    fine = math.sqrt(4.0 * SPLIT_VARIANCE * rest / max(wins, 1e-300))
+    step = max(min(step, fine), width / AUTO_MAX_BINS)
+    if unit > 0 and step < 2.0 * unit and width / unit <= AUTO_MAX_BINS:
+        return unit, True
+    return step, False
+
+
+@njit(cache=True, nogil=True)
+def plan_group(amount, prob, step_req, bins, offset, frac):
+    """Choose the lattice for one group of active deals (0 < p < 1, a != 0).
+
+    Fills ``offset``/``frac`` and returns
+    ``(status, step, exact, lo, size, linear, rounding)``: the lattice covers
+    indices ``lo .. lo + size - 1`` (total = index * step); ``linear`` is True
+    when that range holds every reachable total (no window cut), False when the
+    window cut the support and the total must be folded modulo ``size``.
+    """
+    n = len(amount)
+    mean, var, wins, largest, lo_sum, hi_sum, rest = group_moments(amount, prob)
     w_lo, w_hi = tail_window(mean, var, largest, lo_sum, hi_sum)
     width = w_hi - w_lo
 
-    exact = False
     unit_g = 0
     units = 0.0
     if step_req > 0:
@@ -220,23 +254,9 @@ def plan_group(amount, prob, step_req, bins, offset, frac):
         exact = is_multiple(amount, step)
     else:
         u, units, unit_g = common_unit(amount)
-        if u > 0 and width / u + 3 <= exact_budget(n, bins):
-            step = u
-            exact = True
-        else:
-            unit_g = 0
-            step = width / max(inexact_budget(n, bins) - 8, 1)
-            # the rest of the group once its largest deals are fixed must be resolved too:
-            # a dominant deal's "won" and "lost" copies are each as narrow as the rest
-            rest = var - top[:RESOLVE_TOP].sum() if n > RESOLVE_TOP else 0.0
-            if rest <= 1e-12 * var:  # nothing left, up to float noise in the subtraction
-                rest = var
-            fine = math.sqrt(4.0 * SPLIT_VARIANCE * rest / wins)
-            step = max(min(step, fine), width / AUTO_MAX_BINS)
-            if u > 0 and step < 2.0 * u and width / u <= AUTO_MAX_BINS:
-                # The exact unit costs at most twice the bins: exactness is worth it.
-                step = u
-                exact = True
+        step, exact = automatic_step(width, n, var, rest, wins, u, bins)
+        if not (u > 0 and width / u + 3 <= exact_budget(n, bins)):
+            unit_g = 0  # offsets from amount / step, as on any lattice the budget did not give
     place_deals(amount, prob, step, exact, units, unit_g, offset, frac)
 
     # The lattice total's own spread (the split adds a little variance).

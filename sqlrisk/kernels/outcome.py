@@ -17,7 +17,7 @@ import numpy as np
 from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
 from .lattice import tail_window as window
 from .order import canonical_order
-from .recursion import exact_batch
+from .recursion import DEAL_FIELDS, GROUP_FIELDS, LatticeBatch, exact_batch
 from .scenarios import SNAP_DEALS
 from .spectral import fold_group
 from .sums import sum_outcomes
@@ -146,24 +146,25 @@ def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
     n_groups = len(offsets) - 1
     if snap_explicit is None:
         snap_explicit = np.zeros(n_groups, dtype=bool)
-    (status, origin, step, _exact, rounding, linear, lo, mass_offsets, mass,
-     k, frac, p, a0, a1) = _exact_batch_threads(amount, prob, offsets, step_req, int(bins),
-                                                scenario_max, snap_max, snap_explicit, flip)
-    for g in np.flatnonzero((status == OK) & ~linear):
+    plan = _exact_batch_threads(amount, prob, offsets, step_req, int(bins), scenario_max,
+                                snap_max, snap_explicit, flip)
+    mass, mass_offsets = plan.mass, plan.mass_offsets
+    for g in np.flatnonzero((plan.status == OK) & ~plan.linear):
+        deals = slice(plan.act_start[g], plan.act_stop[g])
         mass[mass_offsets[g]:mass_offsets[g + 1]] = fold_group(
-            k[a0[g]:a1[g]], frac[a0[g]:a1[g]], p[a0[g]:a1[g]], int(lo[g]),
+            plan.offset[deals], plan.frac[deals], plan.prob[deals], int(plan.lo[g]),
             int(mass_offsets[g + 1] - mass_offsets[g]))
-    batch = OutcomeBatch(origin, step, mass, mass_offsets,
-                         np.zeros(n_groups, np.int64), rounding, status == OK)
-    return batch, status
+    batch = OutcomeBatch(plan.origin, plan.step, mass, mass_offsets,
+                         np.zeros(n_groups, np.int64), plan.rounding, plan.status == OK)
+    return batch, plan.status
 
 
 def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, snap_max,
-                         snap_explicit, flip):
+                         snap_explicit, flip) -> LatticeBatch:
     """``exact_batch`` with the groups split between THREADS threads.
 
     The kernel releases the GIL, and every group is computed on its own, so the
-    halves give the same numbers as one call would.
+    parts give the same numbers as one call would.
     """
     n_groups = len(offsets) - 1
     if THREADS < 2 or n_groups < 2 * THREADS or offsets[-1] < PARALLEL_MIN_DEALS:
@@ -179,15 +180,14 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
     with ThreadPoolExecutor(len(parts)) as pool:
         results = list(pool.map(lambda args: exact_batch(*args), parts))
     rows = [offsets[g0] for g0 in bounds[:-1]]
-    masses = [r[8] for r in results]
-    mass_shift = np.cumsum([0] + [len(m) for m in masses[:-1]])
-    return (
-        *(np.concatenate([r[i] for r in results]) for i in range(7)),
-        np.concatenate([[0]] + [r[7][1:] + shift for r, shift in zip(results, mass_shift)]),
-        np.concatenate(masses),
-        *(np.concatenate([r[i] for r in results]) for i in (9, 10, 11)),
-        *(np.concatenate([r[i] + row for r, row in zip(results, rows)]) for i in (12, 13)),
-    )
+    mass_shift = np.cumsum([0] + [len(r.mass) for r in results[:-1]])
+    joined = {name: np.concatenate([getattr(r, name) for r in results])
+              for name in GROUP_FIELDS + DEAL_FIELDS + ("mass",)}
+    joined["mass_offsets"] = np.concatenate(
+        [[0]] + [r.mass_offsets[1:] + shift for r, shift in zip(results, mass_shift)])
+    for name in ("act_start", "act_stop"):
+        joined[name] = np.concatenate([getattr(r, name) + row for r, row in zip(results, rows)])
+    return LatticeBatch(**joined)
 
 
 def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int, step: float = 0.0):

@@ -22,6 +22,7 @@ method for computing the Poisson binomial distribution function", CSDA 122,
 from __future__ import annotations
 
 import math
+from collections import namedtuple
 
 import numpy as np
 from numba import njit
@@ -156,6 +157,21 @@ def _snap_plan(a, step_req):
     return (TOO_MANY_BINS if size > MAX_BINS else OK), first * step, step, size
 
 
+#: What ``exact_batch`` returns. Per group: ``status`` (OK, EMPTY, TOO_MANY_BINS,
+#: SCENARIOS), ``origin``, ``step``, ``exact``, ``rounding``, ``linear`` (the lattice
+#: holds every reachable total; otherwise ``spectral.fold_group`` fills it), ``lo``
+#: (its first index) and ``mass_offsets`` into the flat ``mass``. Per deal, in
+#: canonical order: ``offset`` and ``frac`` (lattice offset and split fraction),
+#: ``prob``; ``act_start``/``act_stop`` delimit each group's deals.
+LatticeBatch = namedtuple("LatticeBatch", [
+    "status", "origin", "step", "exact", "rounding", "linear", "lo", "mass_offsets", "mass",
+    "offset", "frac", "prob", "act_start", "act_stop"])
+#: Which fields are per group, per deal, and the two kinds of offsets (``outcome``
+#: splits a batch between threads and puts the parts back together by these).
+GROUP_FIELDS = ("status", "origin", "step", "exact", "rounding", "linear", "lo")
+DEAL_FIELDS = ("offset", "frac", "prob")
+
+
 @njit(cache=True, nogil=True)
 def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit,
                 flip):
@@ -169,10 +185,8 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
     a lattice (``scenarios.snap_fill``) instead of splitting amounts, on the
     automatic lattice (and on a requested step too where ``snap_explicit[g]``).
     ``flip`` is passed to ``activate``.
-    Returns per-group arrays ``status, origin, step, exact, rounding, linear,
-    lo, mass_offsets`` and the flat ``mass`` (linear groups filled, the others
-    left for ``spectral.fold_group``), plus per-deal arrays in canonical order
-    ``act_offset, act_frac, act_prob`` and their ranges ``act_start, act_stop``.
+    Returns a ``LatticeBatch`` (linear groups' mass filled, the others left for
+    ``spectral.fold_group``).
     """
     n_groups = len(offsets) - 1
     status = np.zeros(n_groups, np.int64)
@@ -272,5 +286,5 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         total = out.sum()
         for j in range(len(out)):
             out[j] = max(out[j], 0.0) / total
-    return (status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
-            act_offset, act_frac, act_prob, act_start, act_stop)
+    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
+                        act_offset, act_frac, act_prob, act_start, act_stop)
