@@ -20,24 +20,15 @@ usable AS (
     WHERE stated_prob IS NOT NULL AND won IS NOT NULL
 ),
 binned AS (
-    SELECT e.bin, e.lo, e.hi, count(u.prob) AS deals, avg(u.prob) AS stated_mean,
-           avg(u.won) AS observed_rate
+    SELECT e.bin, e.lo, e.hi, count(u.prob) AS deals, sum(u.won) AS won_deals,
+           avg(u.prob) AS stated_mean, avg(u.won) AS observed_rate
     FROM edges AS e
     LEFT JOIN usable AS u ON u.prob >= e.lo AND (u.prob < e.hi OR e.last)
     GROUP BY e.bin, e.lo, e.hi
-),
-wilson AS (  -- Wilson score interval (Wilson, J. Amer. Statist. Assoc. 1927), z = 1.96
-    SELECT *, 1.959963984540054 AS z FROM binned
 )
 SELECT bin + 1 AS bin, lo, hi, deals, stated_mean, observed_rate,
        observed_rate - stated_mean AS gap,
-       CASE WHEN deals > 0 THEN
-           (observed_rate + z * z / (2 * deals)
-            - z * sqrt(observed_rate * (1 - observed_rate) / deals + z * z / (4 * deals * deals)))
-           / (1 + z * z / deals) END AS wilson_lo,
-       CASE WHEN deals > 0 THEN
-           (observed_rate + z * z / (2 * deals)
-            + z * sqrt(observed_rate * (1 - observed_rate) / deals + z * z / (4 * deals * deals)))
-           / (1 + z * z / deals) END AS wilson_hi
-FROM wilson
+       wilson_interval(won_deals, deals).lo AS wilson_lo,  -- 95%; NULL for an empty bin
+       wilson_interval(won_deals, deals).hi AS wilson_hi
+FROM binned
 ORDER BY bin;

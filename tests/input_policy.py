@@ -207,7 +207,17 @@ CASES = [
          "a real amount)"),
     Case("adding an exact and a simulated outcome",
          f"SELECT outcome_add({outcome()}, {outcome(mass='[0.25, 0.75]', trials='1000')}).trials",
-         "1000"),
+         "1000"),    Case("a Wilson interval of no trials",
+         "SELECT wilson_interval(0, 0)",
+         "NULL"),
+    Case("more successes than trials",
+         "SELECT wilson_interval(12, 10)",
+         "error: wilson_interval: successes 12 is more than trials 10; count successes out of the "
+         "same trials"),
+    Case("a negative count of trials",
+         "SELECT wilson_interval(1, -5)",
+         "error: wilson_interval: trials -5 is not a whole count in [0, 1e+15] (give the number "
+         "of deals or draws)"),
 ]
 
 

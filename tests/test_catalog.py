@@ -21,7 +21,7 @@ SAMPLES = {
     "amount": "t.amount", "prob": "t.prob", "won": "t.won", "deal_id": "t.deal_id",
     "cuts": "[50.0, 150.0]", "target": "150.0", "qs": "[0.1, 0.5, 0.9]",
     "step": "NULL", "correlation": "0.0", "trials": "500", "seed": "1",
-    "low": "NULL", "high": "NULL", "bins": "5", "level": "0.9",
+    "low": "NULL", "high": "NULL", "bins": "5", "level": "0.9", "successes": "3",
     "o": f"({OUTCOME_LITERAL})", "o1": f"({OUTCOME_LITERAL})", "o2": f"({OUTCOME_LITERAL})",
     "map": "{'prob': [0.2, 0.8], 'rate': [0.1, 0.9]}",
 }

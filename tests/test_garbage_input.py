@@ -255,3 +255,16 @@ def test_calibration_functions(con, rows, bins, x):
          probability_or_null)
     call(con, "brier_parts", f"SELECT brier_parts(prob, won, bins := ?::DOUBLE) FROM {CLOSED}",
          [bins, *params], parts_ok)
+
+
+@SETTINGS
+@given(successes=maybe, trials=maybe, level=st.one_of(st.none(), special, st.floats(-1.0, 2.0)))
+def test_wilson_interval(con, successes, trials, level):
+    def interval_ok(ci):
+        if ci is None:
+            return
+        assert 0.0 <= ci["lo"] <= ci["hi"] <= 1.0
+        assert ci["lo"] <= successes / trials <= ci["hi"]  # the share lies inside its interval
+
+    call(con, "wilson_interval", "SELECT wilson_interval(?::DOUBLE, ?::DOUBLE, "
+         "level := coalesce(?::DOUBLE, 0.95))", [successes, trials, level], interval_ok)

@@ -18,10 +18,13 @@ import pyarrow as pa
 
 from ..errors import InputDataError, ParameterError
 from ..kernels import calibration as kernel
+from ..kernels.intervals import wilson
 from . import arrow_io
 from .readers import ragged_subset
-from .sql_types import MAP_FIELDS, MAP_SQL, PARTS_FIELDS
+from .sql_types import INTERVAL_FIELDS, MAP_FIELDS, MAP_SQL, PARTS_FIELDS
 
+#: Largest count ``wilson_interval`` takes (beyond it a count is a unit mix-up).
+MAX_COUNT = 1e15
 #: Most stated-probability bins ``brier_parts`` takes.
 MAX_BINS = 1000
 
@@ -142,3 +145,39 @@ def apply_calibration(maps, prob):
         sub_rates, _ = ragged_subset(rates, offsets, keep)
         out[keep] = kernel.interpolate(sub_breaks, sub_rates, sub_offsets, values[keep])
     return arrow_io.doubles_to_arrow(out, keep)
+
+
+# -- intervals -----------------------------------------------------------------------
+
+def wilson_interval(successes, trials, level):
+    """``STRUCT(lo, hi)``: the Wilson score interval of ``successes`` out of ``trials``.
+
+    NULL in, NULL out; no trials (0) gives NULL, as a share of nothing has no interval.
+    """
+    fn = "wilson_interval"
+    k, k_null = arrow_io.floats(arrow_io.as_array(successes))
+    n, n_null = arrow_io.floats(arrow_io.as_array(trials))
+    levels = arrow_io.param_column(level, 0.95, len(k))
+    live = ~(k_null | n_null)
+    bad = live & ~((levels > 0) & (levels < 1))
+    if bad.any():
+        raise ParameterError(f"{fn}: level {arrow_io.fmt(levels[bad][0])} is outside (0, 1); "
+                             "0.95 gives 95% intervals")
+    for name, values, what in (("trials", n, "the number of deals or draws"),
+                               ("successes", k, "the number of won deals")):
+        bad = live & ~((values >= 0) & (values <= MAX_COUNT) & (values == np.floor(values)))
+        if bad.any():
+            raise InputDataError(f"{fn}: {name} {_number(values[bad][0])} is not a whole count "
+                                 f"in [0, {MAX_COUNT:.0e}] (give {what})")
+    bad = live & (k > n)
+    if bad.any():
+        i = np.flatnonzero(bad)[0]
+        raise InputDataError(f"{fn}: successes {_number(k[i])} is more than trials "
+                             f"{_number(n[i])}; count successes out of the same trials")
+    keep = live & (n > 0)
+    lo = np.full(len(k), np.nan)
+    hi = np.full(len(k), np.nan)
+    if keep.any():
+        lo[keep], hi[keep] = wilson(k[keep] / n[keep], n[keep], levels[keep])
+    arrays = [arrow_io.doubles_to_arrow(v, keep) for v in (lo, hi)]
+    return pa.StructArray.from_arrays(arrays, names=list(INTERVAL_FIELDS), mask=pa.array(~keep))

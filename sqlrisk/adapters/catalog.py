@@ -189,6 +189,11 @@ FUNCTIONS: tuple[SqlFunction, ...] = (
     SqlFunction("apply_calibration", "scalar",
                 (Arg("map", MAP_SQL, cast=True), Arg("prob", "DOUBLE")), "DOUBLE",
                 calibration.apply_calibration, "the calibrated probability"),
+    SqlFunction("wilson_interval", "scalar",
+                (Arg("successes", "DOUBLE"), Arg("trials", "DOUBLE"),
+                 Arg("level", "DOUBLE", "0.95")),
+                INTERVAL_SQL, calibration.wilson_interval,
+                "the Wilson score interval of successes out of trials"),
 )
 
 BY_NAME = {f.name: f for f in FUNCTIONS}

@@ -11,7 +11,8 @@ import pyarrow as pa
 from scipy.special import ndtri
 
 from ..errors import InputDataError, ParameterError
-from ..kernels.empirical import bin_totals, wilson
+from ..kernels.empirical import bin_totals
+from ..kernels.intervals import wilson
 from ..kernels.lattice import common_unit
 from ..kernels.outcome import OutcomeBatch, concat
 from ..kernels.simulate import MAX_TRIALS, group_keys, simulate_threads

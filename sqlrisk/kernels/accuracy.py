@@ -46,6 +46,7 @@ import math
 import numpy as np
 from numba import njit
 
+from .intervals import Z95, wilson_centre_half
 from .readout import is_smooth
 
 #: Share of an outcome's variance its own lattice noise may have (splits and moves).
@@ -58,16 +59,12 @@ LUMP_WIDTH = 3.0
 #: lattices (one group's error 1.7 times its estimate, without them 2.3 times).
 SLOPE_MARGIN = 1.5
 LUMP_MARGIN = 2.0
-#: The 97.5% point of the standard normal distribution (95% two-sided).
-Z95 = 1.959963984540054
 
 
 @njit(cache=True, nogil=True)
 def wilson_half_width(trials):
     """Half-width of the 95% Wilson interval of an observed share of 1/2 after ``trials`` draws."""
-    n = float(trials)
-    z2 = Z95 * Z95
-    return Z95 / (1.0 + z2 / n) * math.sqrt(0.25 / n + z2 / (4.0 * n * n))
+    return wilson_centre_half(0.5, float(trials), Z95)[1]
 
 
 @njit(cache=True, nogil=True)

@@ -1,5 +1,4 @@
-"""Simulated totals -> a lattice outcome (the empirical distribution), and
-Wilson score intervals for its band probabilities.
+"""Simulated totals -> a lattice outcome (the empirical distribution).
 
 Binning: when every amount is a multiple of a common unit and no deal size
 varies, every simulated total is a multiple of that unit too; if the totals'
@@ -13,7 +12,6 @@ which moves it by at most ``step / 2``; as the outcome is then read as bins
 from __future__ import annotations
 
 import numpy as np
-from scipy.special import ndtri
 
 from .lattice import DEFAULT_BINS, is_multiple
 from .outcome import OutcomeBatch
@@ -59,20 +57,3 @@ def bin_totals(totals, offsets, units, step_req, bins: int = DEFAULT_BINS) -> Ou
     trials = np.diff(offsets).astype(np.int64)
     return OutcomeBatch(origin, step, mass, mass_offsets, trials, rounding,
                         np.ones(n_groups, dtype=bool))
-
-
-def wilson(share, trials, level: float):
-    """Wilson score interval (Wilson, JASA 22, 1927) for a proportion.
-
-    ``share`` is the observed proportion k / n over ``trials`` = n; returns
-    ``(lo, hi)`` arrays. The centre is pulled towards 1/2 and the interval
-    never leaves [0, 1], unlike the normal ("Wald") interval.
-    """
-    share = np.asarray(share, dtype=np.float64)
-    n = np.asarray(trials, dtype=np.float64)
-    z = ndtri(0.5 + level / 2.0)
-    z2 = z * z
-    denom = 1.0 + z2 / n
-    centre = (share + z2 / (2.0 * n)) / denom
-    half = z / denom * np.sqrt(share * (1.0 - share) / n + z2 / (4.0 * n * n))
-    return np.clip(centre - half, 0.0, 1.0), np.clip(centre + half, 0.0, 1.0)
