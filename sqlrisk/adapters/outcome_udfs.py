@@ -54,10 +54,10 @@ def outcome_reach(o, target):
     b = arrow_io.read_outcomes(fn, o)
     values, nulls = arrow_io.floats(arrow_io.as_array(target))
     keep = b.valid & ~nulls
-    if not np.isfinite(values[keep]).all():
-        raise ParameterError(f"{fn}: target {arrow_io.fmt(values[keep][~np.isfinite(values[keep])][0])} "
-                             "is not a finite total (give a finite total, or NULL for a NULL "
-                             "answer)")
+    bad = keep & ~np.isfinite(values)
+    if bad.any():
+        raise ParameterError(f"{fn}: target {arrow_io.fmt(values[bad][0])} is not a finite "
+                             "total (give a finite total, or NULL for a NULL answer)")
     return readers.read_reach(b, values, keep)
 
 
