@@ -265,11 +265,22 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
     for g in range(n_groups):
         mass_offsets[g + 1] = mass_offsets[g] + size[g]
     mass = np.zeros(mass_offsets[-1])
-    for g in range(n_groups):
+    _fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
+          act_amount, act_offset, act_frac, act_prob, act_start, act_stop)
+    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
+                        act_offset, act_frac, act_prob, act_start, act_stop)
+
+
+@njit(cache=True, nogil=True)
+def _fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
+          act_amount, act_offset, act_frac, act_prob, act_start, act_stop):
+    """Each planned linear group's mass: its snapped scenario totals, or the recursion over
+    its deals (a snapped group's ``rounding`` and ``exact`` are known only once filled)."""
+    for g in range(len(status)):
         if status[g] != OK or not linear[g]:
             continue
         out = mass[mass_offsets[g]:mass_offsets[g + 1]]
-        if size[g] == 1:
+        if len(out) == 1:
             out[0] = 1.0
             continue
         if snapped[g]:
@@ -286,5 +297,3 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         total = out.sum()
         for j in range(len(out)):
             out[j] = max(out[j], 0.0) / total
-    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
-                        act_offset, act_frac, act_prob, act_start, act_stop)
