@@ -11,23 +11,56 @@ from __future__ import annotations
 import os
 import re
 from dataclasses import dataclass, field
+from importlib import resources
 from pathlib import Path
 
-from .errors import QueryLookupError, did_you_mean
+from .errors import QueryLookupError, SqlriskError, did_you_mean
 
-PACKAGE_ROOT = Path(__file__).resolve().parent.parent
+
+def _shipped_folder(package: str) -> Path:
+    """The folder of the data package ``package`` (``sqlrisk.sql`` or ``sqlrisk.seeds``).
+
+    pyproject.toml maps these packages to the repository's ``sql/`` and ``seeds/``: an
+    editable install reads those folders themselves, a wheel carries copies inside
+    ``sqlrisk/``. importlib.resources finds whichever this sqlrisk was installed with.
+    """
+    try:
+        folder = resources.files(package)
+    except ModuleNotFoundError as exc:  # an editable install made before this mapping
+        raise SqlriskError(f"sqlrisk: {package} is not installed ({exc}); reinstall sqlrisk, "
+                           "e.g. pip install -e . in the repository") from exc
+    # Callers keep this folder (glob, read_text, DuckDB's read_csv, relative_to), so it must
+    # be a real directory. Every pip install (wheel or editable) unpacks files, and then
+    # files() already is a pathlib.Path: returned as it is, nothing copied. Only a zipped
+    # import gives another Traversable; there Path(str(...)) would name a folder that does
+    # not exist (globs find nothing: "no saved query"), and as_file() would extract into a
+    # temporary folder deleted when its with-block ends (Python 3.11 cannot extract a
+    # folder at all). So that case is an error that says so.
+    if not isinstance(folder, Path):
+        raise SqlriskError(f"sqlrisk: {package} is not a folder on disk ({folder!r}); "
+                           "install sqlrisk unzipped, as pip install does")
+    return folder
+
+
+# The folder that holds the shipped sql/ and seeds/: the repository root under an editable
+# install, the installed sqlrisk/ package of a wheel. The demo names saved queries by their
+# path below it (sql/owner_band_odds.sql either way).
+PACKAGE_ROOT = _shipped_folder("sqlrisk.sql").parent
 _PARAM_LINE = re.compile(r"^--\s*\$(\w+)\s*:\s*(.*)$")
 _DEFAULT = re.compile(r"\(default:\s*([^)]*)\)\s*$")
 _PARAM_USE = re.compile(r"(?<![\w$])\$([A-Za-z_]\w*)")
 
 
 def query_dir() -> Path:
-    """Where the saved queries live: ``$SQLRISK_SQL_DIR`` or the repository's ``sql/``."""
-    return Path(os.environ.get("SQLRISK_SQL_DIR", PACKAGE_ROOT / "sql"))
+    """Where the saved queries live: ``$SQLRISK_SQL_DIR``, else the shipped ``sql/``."""
+    override = os.environ.get("SQLRISK_SQL_DIR")
+    return Path(override) if override is not None else _shipped_folder("sqlrisk.sql")
 
 
 def seeds_dir() -> Path:
-    return Path(os.environ.get("SQLRISK_SEEDS_DIR", PACKAGE_ROOT / "seeds"))
+    """Where the demo's CSVs live: ``$SQLRISK_SEEDS_DIR``, else the shipped ``seeds/``."""
+    override = os.environ.get("SQLRISK_SEEDS_DIR")
+    return Path(override) if override is not None else _shipped_folder("sqlrisk.seeds")
 
 
 @dataclass
