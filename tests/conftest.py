@@ -1,12 +1,16 @@
-"""Shared fixtures: ``con`` (in-memory DuckDB with sqlrisk registered) and ``db_path``."""
+"""Shared fixtures (``con``: in-memory DuckDB with sqlrisk registered, ``db_path``, ``demo_con``)
+and the helpers several test modules use (``one``, ``mass_by_total``, ``udf_message``,
+``run_saved``, ``assert_png``)."""
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import pytest
 
 import sqlrisk
+from sqlrisk import queries, runner
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -30,3 +34,37 @@ def demo_con(con):
         con.execute(f"CREATE TABLE {name} AS SELECT * FROM read_csv(?)",
                     [str(ROOT / "seeds" / f"{name}.csv")])
     return con
+
+
+# -- helpers shared by the test modules -----------------------------------------------
+
+def one(con, sql, params=()):
+    """The single value a query returns (its first row's first column)."""
+    return con.execute(sql, list(params)).fetchone()[0]
+
+
+def mass_by_total(o) -> dict[float, float]:
+    """An outcome struct as {total: probability}, one entry per lattice point."""
+    return {o["origin"] + i * o["step"]: m for i, m in enumerate(o["mass"])}
+
+
+def udf_message(exc: Exception) -> str:
+    """The message a UDF raised, without DuckDB's "Python exception occurred ..." prefix."""
+    return re.sub(r"^.*?Python exception occurred while executing the UDF: \w+: ", "", str(exc))
+
+
+def run_saved(con, name, **params) -> list[dict]:
+    """The rows of saved query ``name`` (from sql/) run on ``con`` with text parameters."""
+    return runner.run_query(con, queries.find(name), params).table.to_pylist()
+
+
+def assert_png(path, min_size=(200, 150)) -> tuple[int, int]:
+    """``path`` decodes as a PNG image (matplotlib's reader) of at least ``min_size`` pixels
+    (width, height), not blank; returns (width, height)."""
+    from matplotlib import image
+
+    pixels = image.imread(str(path), format="png")
+    height, width = pixels.shape[:2]
+    assert width >= min_size[0] and height >= min_size[1], (width, height)
+    assert pixels.reshape(-1, pixels.shape[-1]).std(axis=0).max() > 0, f"{path} is one colour"
+    return width, height

@@ -1,5 +1,6 @@
-"""Calibration: calibration_map, apply_calibration, brier_score, brier_parts, the three
-saved queries built on them, and the reliability diagram.
+"""Calibration of single deals: calibration_map, apply_calibration, brier_score and
+brier_parts. The saved queries built on them are in test_calibration_queries.py, the
+reliability diagram in test_reliability_chart.py.
 
 Outside references are named beside each check: SciPy's isotonic regression,
 the min-max formula of isotonic regression, numpy.interp, direct numpy sums,
@@ -10,37 +11,25 @@ random input comes from a seeded ``numpy.random.Generator``.
 
 from __future__ import annotations
 
-import re
-import xml.etree.ElementTree as ET
-
 import duckdb
 import numpy as np
 import pytest
-from scipy import stats
 from scipy.optimize import isotonic_regression
-from typer.testing import CliRunner
 
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from conftest import ROOT
-from sqlrisk import queries, runner
+from conftest import one, udf_message
 from sqlrisk.kernels import calibration as kernel
 from sqlrisk.adapters.sql_types import MAP_SQL, PARTS_SQL
-from sqlrisk.cli import app
 
 TOL = 1e-12
 CLOSED = "(SELECT unnest(?::DOUBLE[]) AS prob, unnest(?::DOUBLE[]) AS won)"
 GROUPED = ("(SELECT unnest(?::BIGINT[]) AS g, unnest(?::DOUBLE[]) AS prob, "
            "unnest(?::DOUBLE[]) AS won)")
-SEEDS = ROOT / "seeds"
 
 
 # -- helpers ------------------------------------------------------------------
-
-def one(con, sql, params=()):
-    return con.execute(sql, list(params)).fetchall()[0][0]
-
 
 def fit(con, prob, won):
     return one(con, f"SELECT calibration_map(prob, won) FROM {CLOSED}",
@@ -67,10 +56,6 @@ def closed_deals(rng, n, decimals=2):
     prob = rng.uniform(0.0, 1.0, n).round(decimals)
     won = (rng.uniform(size=n) < 0.1 + 0.7 * prob ** 1.5).astype(float)
     return prob, won
-
-
-def udf_message(exc: Exception) -> str:
-    return re.sub(r"^.*?Python exception occurred while executing the UDF: \w+: ", "", str(exc))
 
 
 @pytest.fixture
@@ -193,7 +178,7 @@ def test_bin_edges_are_the_doubles_k_over_bins():
 def test_map_struct_layout(demo):
     kind = demo.execute("SELECT typeof(calibration_map(stated_prob, won)), "
                         "typeof(brier_parts(stated_prob, won)) FROM closed_deals").fetchall()[0]
-    assert kind == (MAP_SQL, PARTS_SQL)  # source: the contract's documented layout
+    assert kind == (MAP_SQL, PARTS_SQL)  # the layouts README "Calibration maps" documents
 
 
 # -- apply_calibration ---------------------------------------------------------------
@@ -443,172 +428,3 @@ def test_a_malformed_map_in_a_later_row_is_found(con):
            [{"prob": [0.1, 0.9, 0.5], "rate": [0.2, 0.3, 0.4], "deals": 3}]
     with pytest.raises(duckdb.Error, match=r"breakpoints \[0.1, 0.9, 0.5\] are not strictly"):
         con.execute(f"SELECT apply_calibration(unnest(?::{MAP_SQL}[]), 0.3)", [maps]).fetchall()
-
-
-# -- saved queries -------------------------------------------------------------------
-
-def run_saved(con, name, **params):
-    return runner.run_query(con, queries.find(name), params).table.to_pylist()
-
-
-def test_reliability_table_matches_numpy_and_scipy_wilson(demo):
-    rows = run_saved(demo, "reliability_table")
-    prob, won = map(np.array, zip(*demo.execute("SELECT stated_prob, won FROM closed_deals")
-                                  .fetchall()))
-    assert [r["bin"] for r in rows] == list(range(1, 11))
-    assert sum(r["deals"] for r in rows) == len(prob)
-    for r in rows:
-        k = r["bin"] - 1
-        mine = (prob >= k / 10) & ((prob < (k + 1) / 10) | (k == 9))
-        assert r["deals"] == mine.sum()
-        assert r["stated_mean"] == pytest.approx(prob[mine].mean(), abs=TOL)  # numpy mean
-        assert r["observed_rate"] == pytest.approx(won[mine].mean(), abs=TOL)
-        ci = stats.binomtest(int(won[mine].sum()), int(mine.sum())).proportion_ci(method="wilson")
-        # source: scipy.stats.binomtest(...).proportion_ci(method='wilson'), 95%
-        assert (r["wilson_lo"], r["wilson_hi"]) == pytest.approx((ci.low, ci.high), abs=1e-12)
-
-
-@pytest.mark.parametrize("bins", [10, 37, 100])
-def test_reliability_table_bins_are_the_ones_brier_parts_uses(demo, bins):
-    rows = run_saved(demo, "reliability_table", bins=str(bins))
-    n = sum(r["deals"] for r in rows)
-    rel = sum(r["deals"] * (r["stated_mean"] - r["observed_rate"]) ** 2 for r in rows
-              if r["deals"]) / n
-    got = one(demo, "SELECT brier_parts(stated_prob, won, bins := ?) FROM closed_deals", [bins])
-    assert rel == pytest.approx(got["reliability"], abs=TOL)  # same bins, same reliability
-    assert len(rows) == bins  # empty bins are listed with 0 deals
-    assert bins != 100 or sum(r["deals"] > 0 for r in rows) == len(set(
-        x[0] for x in demo.execute("SELECT stated_prob FROM closed_deals").fetchall()))
-
-
-def test_calibration_by_stage_falls_back_to_the_stage_map(demo):
-    rows = run_saved(demo, "calibration_by_stage")  # default min_deals: 60
-    assert len(rows) == 54 * 5 and {r["map_from"] for r in rows} == {"stage"}
-    stage_maps = dict(demo.execute("SELECT stage_at_snapshot, calibration_map(stated_prob, won) "
-                                   "FROM closed_deals GROUP BY ALL").fetchall())
-    assert all(r["map"] == stage_maps[r["stage"]] for r in rows)
-    deals = demo.execute("SELECT owner_id, stage_at_snapshot, stated_prob, won FROM closed_deals"
-                         ).fetchall()
-    for r in rows[::17]:
-        mine = [(p, w) for o, s, p, w in deals if o == r["owner_id"] and s == r["stage"]]
-        p, w = map(np.array, zip(*mine))
-        assert r["deals"] == len(mine)
-        assert r["brier_stated"] == pytest.approx(np.mean((p - w) ** 2), abs=TOL)  # numpy
-        cal = np.interp(p, r["map"]["prob"], r["map"]["rate"])  # source: numpy.interp
-        assert r["brier_calibrated"] == pytest.approx(np.mean((cal - w) ** 2), abs=TOL)
-
-
-def test_calibration_by_stage_uses_the_owners_map_with_enough_history(demo):
-    rows = run_saved(demo, "calibration_by_stage", min_deals="30")
-    own = [r for r in rows if r["map_from"] == "owner"]
-    assert own and all(r["deals"] >= 30 for r in own)
-    assert all(r["deals"] < 30 for r in rows if r["map_from"] == "stage")
-    r = own[0]
-    alone = one(demo, "SELECT calibration_map(stated_prob, won) FROM closed_deals "
-                      "WHERE owner_id = ? AND stage_at_snapshot = ?", [r["owner_id"], r["stage"]])
-    assert r["map"] == alone
-
-
-def test_stated_vs_calibrated_stated_side_is_owner_band_odds(demo):
-    rows = run_saved(demo, "stated_vs_calibrated")
-    reference = {r["owner_id"]: r for r in run_saved(demo, "owner_band_odds")}
-    bands = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more")
-    assert len(rows) == len(reference) == 54
-    for r in rows:
-        ref = reference[r["owner_id"]]
-        assert [r[f"{b}_stated"] for b in bands] == [ref[b] for b in bands]
-        assert sum(r[f"{b}_calibrated"] for b in bands) == pytest.approx(1.0, abs=1e-12)
-        assert r["uncalibrated_deals"] == 0  # every pipeline stage has closed deals
-    # the demo's sellers are optimistic in late stages: calibration lowers expectations
-    assert sum(r["expected_calibrated"] for r in rows) < sum(r["expected_stated"] for r in rows)
-
-
-def test_stated_vs_calibrated_keeps_stated_prob_where_a_stage_has_no_history(demo):
-    demo.execute("DELETE FROM closed_deals WHERE stage_at_snapshot = 'handshake'")
-    rows = run_saved(demo, "stated_vs_calibrated")
-    handshake = dict(demo.execute("SELECT owner_id, count(*) FROM pipeline "
-                                  "WHERE stage = 'handshake' GROUP BY ALL").fetchall())
-    assert {r["owner_id"]: r["uncalibrated_deals"] for r in rows if r["uncalibrated_deals"]} \
-        == handshake
-
-
-def test_reliability_table_refuses_bad_bins_and_probabilities(demo):
-    with pytest.raises(duckdb.Error, match=r"reliability_table: bins 0 is not a whole number"):
-        run_saved(demo, "reliability_table", bins="0")
-    demo.execute("UPDATE closed_deals SET stated_prob = 45 WHERE deal_id = 'cd_00002'")
-    with pytest.raises(duckdb.Error, match=r"probability 45.0 is outside \[0, 1\]"):
-        run_saved(demo, "reliability_table")
-
-
-# -- reliability diagram -------------------------------------------------------------
-
-cli = CliRunner()
-SOURCE = ["--source", f"closed_deals={SEEDS / 'closed_deals.csv'}"]
-NS = {"s": "http://www.w3.org/2000/svg"}
-
-
-def test_chart_draws_a_reliability_diagram_as_svg(demo, tmp_path):
-    out = tmp_path / "rel.svg"
-    result = cli.invoke(app, ["chart", "reliability_table", *SOURCE, "--output", str(out)])
-    assert result.exit_code == 0, result.output
-    tree = ET.parse(out)  # valid XML
-    assert tree.getroot().tag == "{http://www.w3.org/2000/svg}svg"
-    table = run_saved(demo, "reliability_table")
-    points = tree.findall(".//s:circle[@class='point']", NS)
-    labels = [t.text for t in tree.findall(".//s:text[@class='deals']", NS)]
-    assert len(points) == len(table) == 10
-    assert labels == [f"{r['deals']:,}" for r in table]
-    assert len(tree.findall(".//s:line[@class='interval']", NS)) == 10
-    diagonal = tree.find(".//s:line[@class='diagonal']", NS)
-    frame = tree.find(".//s:rect[@class='axis']", NS)
-    left, top = float(frame.get("x")), float(frame.get("y"))
-    side = float(frame.get("width"))
-    assert (float(diagonal.get("x1")), float(diagonal.get("y1"))) == (left, top + side)
-    assert (float(diagonal.get("x2")), float(diagonal.get("y2"))) == (left + side, top)
-    for circle, r in zip(points, table):  # each bin sits at (stated_mean, observed_rate)
-        assert float(circle.get("cx")) == pytest.approx(left + r["stated_mean"] * side, abs=0.06)
-        assert float(circle.get("cy")) == pytest.approx(top + (1 - r["observed_rate"]) * side,
-                                                        abs=0.06)
-    radii = [float(c.get("r")) for c in points]
-    deals = [r["deals"] for r in table]
-    assert radii.index(max(radii)) == deals.index(max(deals))  # the biggest bin, biggest circle
-
-
-def test_chart_draws_a_reliability_diagram_as_png_and_skips_empty_bins(tmp_path):
-    out = tmp_path / "rel.png"
-    result = cli.invoke(app, ["chart", "reliability_table", *SOURCE, "-p", "bins=100",
-                              "--output", str(out)])
-    assert result.exit_code == 0, result.output
-    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    svg = tmp_path / "rel100.svg"
-    assert cli.invoke(app, ["chart", "reliability_table", *SOURCE, "-p", "bins=100",
-                            "--output", str(svg)]).exit_code == 0
-    # 100 bins, of which those without deals (e.g. 0.98-0.99) are not drawn
-    assert 50 < len(ET.parse(svg).findall(".//s:circle[@class='point']", NS)) < 100
-
-
-def test_chart_one_diagram_per_label(tmp_path):
-    query = tmp_path / "by_stage.sql"
-    query.write_text("-- Reliability by stage.\n"
-                     "SELECT stage_at_snapshot AS stage, round(stated_prob, 1) AS b, "
-                     "count(*) AS deals, avg(stated_prob) AS stated_mean, "
-                     "avg(won) AS observed_rate FROM closed_deals GROUP BY ALL\n")
-    result = cli.invoke(app, ["chart", str(query), *SOURCE, "--output", str(tmp_path / "s.svg"),
-                              "--where", "stage IN ('scout', 'terms')"])
-    assert result.exit_code == 0, result.output
-    files = sorted(tmp_path.glob("s-*.svg"))
-    titles = {ET.parse(f).find(".//s:text[@class='title']", NS).text for f in files}
-    assert titles == {"scout", "terms"}
-
-
-def test_chart_errors_name_both_shapes_and_refuse_cuts(tmp_path):
-    neither = cli.invoke(app, ["chart", "owner_quantiles", "--source",
-                               f"pipeline={SEEDS / 'pipeline.csv'}", "--source",
-                               f"quota_bands={SEEDS / 'quota_bands.csv'}",
-                               "--output", str(tmp_path / "x.svg")])
-    assert neither.exit_code == 1 and neither.output.count("\n") == 1
-    assert "no outcome column" in neither.output and "stated_mean, observed_rate, deals" \
-        in neither.output
-    cuts = cli.invoke(app, ["chart", "reliability_table", *SOURCE, "--cuts", "1,2",
-                            "--output", str(tmp_path / "y.svg")])
-    assert cuts.exit_code == 1 and "--cuts" in cuts.output and cuts.output.count("\n") == 1

@@ -7,9 +7,10 @@ integrated over the factor with composite Gauss-Legendre); for groups of 100
 deals or more in cents, which no exact method fits, a lattice far finer than
 the total's spread, whose own error is added to the allowance
 (``REFERENCE_SLACK``). Groups of 21 to 99 deals are in tens and hundreds. Cuts go on
-scenario totals and midway between neighbouring ones. The issue's contract:
-the largest band error so read is at most ``outcome_error`` for every group,
-and ``outcome_error`` is at most 0.002 for the median group of 20-500 deals.
+scenario totals and midway between neighbouring ones. The rules checked
+(README "Accuracy: which answers are exact"): the largest band error so read is at most
+``outcome_error`` for every group, and ``outcome_error`` is at most 0.002 for the median
+group of 20-500 deals.
 """
 
 from __future__ import annotations
@@ -210,7 +211,7 @@ def test_corpus_is_the_size_the_issue_asks_for(corpus):
 
 
 def test_outcome_error_bounds_the_largest_band_error_of_every_group(corpus):
-    # source: issue contract, the largest true band error is at most outcome_error
+    # rule: outcome_error bounds the largest true band error of every group
     bad = [(c.true_error - c.estimate, c.kind, c.n, c.unit, c.true_error, c.estimate)
            for c in corpus if c.true_error > c.estimate + c.slack]
     assert not bad, sorted(bad, reverse=True)[:5]
@@ -219,7 +220,7 @@ def test_outcome_error_bounds_the_largest_band_error_of_every_group(corpus):
 def test_outcome_error_is_small_for_the_median_group_of_20_to_500_deals(corpus):
     mid = [c.estimate for c in corpus if 20 <= c.n <= 500]
     assert len(mid) >= 50
-    # source: issue contract, at most 0.002 for the median group of 20-500 deals
+    # rule: outcome_error is at most 0.002 for the median group of 20-500 deals
     assert float(np.median(mid)) <= 0.002
 
 

@@ -6,7 +6,7 @@ and summing to 1; quantiles and moments finite; outcomes with non-negative mass
 summing to 1) or raises the documented one-line error, which names the function
 (``InputDataError: fn: ...`` or ``ParameterError: fn: ...`` inside DuckDB's
 message). Anything else (another exception, a NaN answer, a crash) fails.
-Source: the issue's contract for bad input.
+The rule checked: README "Input policy" and CONVENTIONS.md "Errors".
 """
 
 from __future__ import annotations

@@ -1,8 +1,8 @@
 """The input policy (README "Input policy"): every case behaves as written, and the
 README's table is generated from the same cases, so the two cannot drift.
 
-Source: the issue's contract for bad input (a valid result, or a one-line error that
-names the function, the offending value and the fix).
+The rule checked: bad input gives a valid result or a one-line error that names the
+function, the offending value and the fix (CONVENTIONS.md "Errors").
 """
 
 from __future__ import annotations

@@ -1,7 +1,7 @@
 """Identities every outcome must satisfy, on random groups of deals (hypothesis).
 
-The sources are the issue's SQL contract and textbook facts about distribution
-functions ("common practice"). Examples stay small so the file runs in well
+The rules are those the README states for every outcome, and textbook facts about
+distribution functions ("common practice"). Examples stay small so the file runs in well
 under a minute; the numba kernels are compiled (or loaded from cache) once, by
 the module's warm-up fixture.
 """
@@ -14,6 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import sqlrisk
+from conftest import mass_by_total, one
 
 OUTCOME = sqlrisk.OUTCOME_SQL
 TOL = 1e-12
@@ -54,17 +55,9 @@ def columns(deals):
     return [[float(a) for a, _ in deals], [float(p) for _, p in deals]]
 
 
-def one(con, sql, params=()):
-    return con.execute(sql, list(params)).fetchone()[0]
-
-
 def dist(con, deals, step=None):
     return one(con, f"SELECT outcome_dist(amount, prob, step := ?) FROM {DEALS}",
                [step, *columns(deals)])
-
-
-def mass_by_total(o) -> dict[float, float]:
-    return {o["origin"] + i * o["step"]: m for i, m in enumerate(o["mass"])}
 
 
 def assert_same_mass(o1, o2):
@@ -101,11 +94,12 @@ def test_exact_outcome_equals_brute_force_over_every_scenario(con, deals, cuts):
 @given(deals=any_deals, cuts=st.lists(st.floats(-2e7, 2e7), max_size=6, unique=True))
 def test_mass_and_bands_sum_to_one(con, deals, cuts):
     o = dist(con, deals)
-    assert min(o["mass"]) >= 0.0  # source: issue contract, mass non-negative
-    assert sum(o["mass"]) == pytest.approx(1.0, abs=TOL)  # source: issue contract
+    # rule: an outcome's mass is a probability distribution (non-negative, sums to 1)
+    assert min(o["mass"]) >= 0.0
+    assert sum(o["mass"]) == pytest.approx(1.0, abs=TOL)
     bands = one(con, f"SELECT band_odds(amount, prob, ?::DOUBLE[]) FROM {DEALS}",
                 [sorted(cuts), *columns(deals)])
-    assert len(bands) == len(cuts) + 1 and min(bands) >= 0.0  # source: issue contract
+    assert len(bands) == len(cuts) + 1 and min(bands) >= 0.0  # k cuts make k + 1 bands
     assert sum(bands) == pytest.approx(1.0, abs=TOL)  # common practice: bands partition
 
 
@@ -162,7 +156,8 @@ def test_merge_of_owner_outcomes_is_the_outcome_of_all_deals(con, deals, step):
            "unnest(?::DOUBLE[]) prob) GROUP BY owner)")
     merged = one(con, sql, [step, list(owner), amount, list(prob)])
     whole = dist(con, list(zip(amount, prob)), step=step)
-    assert_same_mass(merged, whole)  # source: issue contract (sum of independent outcomes)
+    # rule: merging the owners' outcomes is the outcome of all their deals together
+    assert_same_mass(merged, whole)
     assert merged["rounding"] == 0.0
 
 
@@ -272,7 +267,7 @@ def test_shuffled_rows_give_bit_identical_results(con, deals, order):
            f"FROM {DEALS}")
     first = con.execute(sql, columns(deals)).fetchall()
     second = con.execute(sql, columns(shuffled)).fetchall()
-    assert first == second  # source: issue contract, results do not depend on row order
+    assert first == second  # rule: results do not depend on row order
 
 
 def test_threads_and_row_order_do_not_change_results(con):
@@ -289,7 +284,7 @@ def test_threads_and_row_order_do_not_change_results(con):
     one_thread = con.execute(sql.format(order="id")).fetchall()
     con.execute("SET threads = 4")
     for order in ("id DESC", "hash(id)", "random()"):
-        # source: issue contract, results do not depend on row order or threads
+        # rule: results do not depend on row order or threads
         assert con.execute(sql.format(order=order)).fetchall() == one_thread
 
 
@@ -299,7 +294,7 @@ def test_merge_is_bit_identical_under_row_order(con):
         "SELECT outcome_dist(a, p) FROM (VALUES (1, 100, 0.5), (1, 300, 0.5), (2, 200, 0.5), "
         "(2, 100, 0.5), (3, 100, 0.1)) t(g, a, p) GROUP BY g ORDER BY g").fetchall()]
     sql = f"SELECT outcome_merge(o) FROM unnest(?::{OUTCOME}[]) u(o)"
-    # source: issue contract, results do not depend on row order
+    # rule: results do not depend on row order
     assert one(con, sql, [parts]) == one(con, sql, [parts[::-1]])
 
 
@@ -347,7 +342,7 @@ def test_aggregates_equal_every_scenario_with_cuts_on_totals(con, deals, picks, 
         f"outcome_quantiles(?::{OUTCOME}, ?::DOUBLE[])",
         [o, cuts, o, target, o, levels]).fetchone()
     if o["rounding"] == 0.0:
-        # source: issue contract, the same numbers as the aggregates on an exact outcome
+        # rule: on an exact outcome the stored readers give the aggregates' numbers
         assert stored == (row[0], row[1], row[2])
     else:
         # a snapped small group: every total moved up by less than rounding, so a cut on a

@@ -16,6 +16,7 @@ import pytest
 from scipy import stats
 
 import sqlrisk
+from conftest import mass_by_total, one
 
 TOL = 1e-12
 #: readout.py: a CDF within 1e-12 of the level q counts as reaching q.
@@ -27,17 +28,9 @@ DEALS = "(SELECT unnest(?::DOUBLE[]) AS amount, unnest(?::DOUBLE[]) AS prob)"
 
 # -- helpers ------------------------------------------------------------------
 
-def one(con, sql, params=()):
-    return con.execute(sql, list(params)).fetchone()[0]
-
-
 def dist(con, amounts, probs, step=None):
     return one(con, f"SELECT outcome_dist(amount, prob, step := ?) FROM {DEALS}",
                [step, [float(a) for a in amounts], [float(p) for p in probs]])
-
-
-def mass_by_total(o) -> dict[float, float]:
-    return {o["origin"] + i * o["step"]: m for i, m in enumerate(o["mass"])}
 
 
 def brute_force(amounts, probs) -> dict[float, float]:
@@ -242,12 +235,14 @@ def _check_rounding_guarantee(con, rng, amounts, probs, step):
         [o, targets]).fetchall()
     slack = o["rounding"]
     for t, reach in rows:
-        # source: issue contract, P(S >= t + rounding) <= reach <= P(S >= t - rounding)
+        # rule (README "The lattice and `rounding`"): no total moves by more than
+        # `rounding`, so P(S >= t + rounding) <= reach <= P(S >= t - rounding)
         assert ref_reach(ref, t + slack) - TOL <= reach <= ref_reach(ref, t - slack) + TOL, t
     mean = one(con, f"SELECT outcome_mean(?::{OUTCOME})", [o])
     expected = sum(a * p for a, p in zip(amounts, probs))
     if o["rounding"] >= o["step"]:
-        # source: issue contract, the split keeps each amount's mean: E[S] = sum(a * p)
+        # rule: splitting an amount between two lattice points keeps its mean, so
+        # E[S] = sum(a * p) (linearity of expectation, common practice)
         assert mean == pytest.approx(expected, rel=1e-9, abs=1e-9)
     else:
         # a small group's totals moved up to the next point (never down, by < rounding)
@@ -306,10 +301,12 @@ def test_large_group_on_an_inexact_lattice_within_rounding(con):
     rows = con.execute(f"SELECT t, outcome_reach(?::{OUTCOME}, t) FROM unnest(?::DOUBLE[]) u(t)",
                        [o, targets]).fetchall()
     for t, got in rows:
-        # source: issue contract, P(S >= t + rounding) <= reach <= P(S >= t - rounding)
+        # rule (README "The lattice and `rounding`"): no total moves by more than
+        # `rounding`, so P(S >= t + rounding) <= reach <= P(S >= t - rounding)
         assert reach(t + o["rounding"]) - TOL <= got <= reach(t - o["rounding"]) + TOL, t
     mean = one(con, f"SELECT outcome_mean(?::{OUTCOME})", [o])
-    assert mean == pytest.approx(float(amounts @ probs), rel=1e-9)  # source: issue contract
+    # rule: the split keeps each amount's mean, E[S] = sum(a * p) (linearity of expectation)
+    assert mean == pytest.approx(float(amounts @ probs), rel=1e-9)
 
 
 # -- very large groups: pooled leaves (4,096 deals and more) -------------------------
@@ -402,12 +399,13 @@ def test_decimal_integer_double_amounts_give_the_same_outcome(con):
     row = con.execute(
         "SELECT outcome_dist(a::DECIMAL(12,2), p), outcome_dist(a::INTEGER, p), "
         f"outcome_dist(a::BIGINT, p), outcome_dist(a::DOUBLE, p) FROM {AMOUNTS_SQL}").fetchone()
-    assert row[0] == row[1] == row[2] == row[3]  # source: issue contract
+    # rule: an amount's SQL type does not change the outcome, only its value does
+    assert row[0] == row[1] == row[2] == row[3]
     row = con.execute(
         "SELECT outcome_dist(a::DECIMAL(12,2), p), outcome_dist(a::DOUBLE, p), "
         "band_odds(a::DECIMAL(12,2), p, [0, 1000]), band_odds(a::DOUBLE, p, [0, 1000]) "
         f"FROM {CENTS_SQL}").fetchone()
-    assert row[0] == row[1]  # source: issue contract
+    assert row[0] == row[1]  # the same rule for amounts in cents
     assert row[2] == row[3]
     row = con.execute(
         "SELECT outcome_dist(a::DECIMAL(12,2), p, step := 0.01), "

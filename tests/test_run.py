@@ -15,7 +15,7 @@ import duckdb
 import pytest
 from typer.testing import CliRunner
 
-from conftest import ROOT
+from conftest import ROOT, assert_png
 from sqlrisk import queries
 from sqlrisk.cli import app
 
@@ -169,7 +169,8 @@ def test_chart_png_and_one_file_per_row(demo_db, tmp_path):
     assert result.exit_code == 0, result.output
     files = sorted(tmp_path.glob("r-*.png"))
     assert len(files) == 7
-    assert all(f.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" for f in files)
+    for f in files:
+        assert_png(f)
 
 
 def test_chart_needs_an_outcome_column(demo_db, tmp_path):

@@ -1,7 +1,7 @@
 """`sqlrisk run` when things go wrong: failed writes, read-only or missing files, bad sources.
 
-The contracts checked here come from the issue contract for ``run`` (crash safety:
-"a failure leaves the table as it was", the ``--into`` help text), from
+The rules checked here: a failed ``run`` leaves the table as it was (the ``--into``
+help text: "a failure leaves the table as it was"); from
 CONVENTIONS.md "Errors" (one line on stderr, exit code 1, no traceback for user
 mistakes) and from sqlrisk/queries.py (parameters are prepared-statement values,
 never pasted into the SQL).
@@ -110,7 +110,7 @@ def test_failed_into_leaves_the_replaced_rows_in_place(tmp_path, kind, mode):
         assert_proc_one_line_error(proc, message)
     else:
         assert_cli_one_line_error(invoke(*args), message)
-    # source: issue contract (crash safety) / --into help: "a failure leaves the table as it was"
+    # rule (--into help): "a failure leaves the table as it was"
     assert rows(db, "SELECT * FROM hist ORDER BY ALL") == BEFORE
     assert table_names(db) == ["hist"]
 
@@ -131,7 +131,8 @@ def test_failed_into_a_new_table_does_not_create_it(tmp_path):
     query.write_text(template.format(bad, bad))
     result = invoke("run", str(query), "--db", db, "--into", "fresh_table")
     assert_cli_one_line_error(result, message)
-    # source: issue contract (crash safety): the CREATE TABLE IF NOT EXISTS is in the rolled-back transaction
+    # rule: a failed run creates no table; CREATE TABLE IF NOT EXISTS is in the rolled-back
+    # transaction
     assert table_names(db) == ["hist"]
     assert rows(db, "SELECT * FROM hist ORDER BY ALL") == BEFORE
 
@@ -229,7 +230,7 @@ def _write_into_read_only_folder(db_in_read_only_folder):
 def test_into_a_database_in_a_read_only_folder_fails_cleanly_and_changes_nothing(
         db_in_read_only_folder):
     db, before, proc = _write_into_read_only_folder(db_in_read_only_folder)
-    # source: CONVENTIONS.md "Errors"; issue contract (crash safety)
+    # rule (CONVENTIONS.md "Errors"): one line, exit 1, and the database is left as it was
     assert_proc_one_line_error(proc)
     assert fingerprint(db) == before
     assert sorted(p.name for p in db.parent.iterdir()) == ["f.duckdb"]
@@ -360,6 +361,6 @@ def test_parameter_that_is_not_valid_unicode_is_a_clean_error(echo_db):
     # A lone surrogate (possible from a mis-decoded argv) cannot become a DuckDB VARCHAR.
     db, query = echo_db
     result = invoke("run", str(query), "--db", db, "-p", "label=\ud800", "--into", "echoes")
-    # source: CONVENTIONS.md "Errors"; issue contract (crash safety)
+    # rule (CONVENTIONS.md "Errors"): one line, exit 1, and the database is left as it was
     assert_cli_one_line_error(result, "surrogate")
     assert table_names(db) == ["sentinel"]

@@ -3,9 +3,9 @@
 Brute force adds up all 2^n scenarios (n <= 16; ``tests/exact_reference.py``,
 no sqlrisk code) with amounts in cents and in whole tens, credit notes, and
 probabilities of 0 and 1; cuts sit on scenario totals and midway between them.
-SciPy's ``poisson_binom`` gives the reference for equal amounts. The issue's
-contract: band_odds, reach_odds, total_quantiles and deal_swing are exact (to
-1e-12) for these groups, whatever the amounts' unit.
+SciPy's ``poisson_binom`` gives the reference for equal amounts. The rule checked
+(README "Accuracy: which answers are exact"): band_odds, reach_odds, total_quantiles and
+deal_swing are exact (to 1e-12) for these groups, whatever the amounts' unit.
 """
 
 from __future__ import annotations

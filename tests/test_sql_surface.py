@@ -1,7 +1,7 @@
 """The SQL surface: names, GROUP BY / no GROUP BY / window use, parameters from
 joined tables, the NULL rule, registering twice, storage (DuckDB file, Parquet)
-and error messages. The source of each rule is the issue's SQL contract unless
-a comment says otherwise.
+and error messages. Each rule is one the README's SQL reference states, unless a
+comment says otherwise.
 """
 
 from __future__ import annotations
@@ -26,8 +26,8 @@ FOUR_CALLS = ["outcome_dist(amount, win_prob)", "band_odds(amount, win_prob, [50
 FOUR = ", ".join(FOUR_CALLS)
 
 
-def test_the_first_contracts_names_are_in_the_catalog_and_registered(con):
-    """The names the first SQL contract fixed; tests/test_catalog.py checks every
+def test_the_core_names_are_in_the_catalog_and_registered(con):
+    """The core SQL names users call (never renamed); tests/test_catalog.py checks every
     catalog entry in full."""
     from sqlrisk.adapters.catalog import BY_NAME
 
