@@ -1,9 +1,9 @@
 -- Calibration maps from the closed deals per owner and stage (the stage's map unless the owner has enough history), with Brier scores.
 -- A map (isotonic, stated win probability -> observed win rate) is fitted per stage, and per owner and stage;
 -- an owner uses their own at a stage only with at least $min_deals closed deals there.
--- $min_deals: closed deals an owner needs at a stage for a map of their own; others use the stage's map (default: 60)
--- Tables: closed_deals (owner_id, stage_at_snapshot, stated_prob, won). brier_calibrated is measured on the
--- deals the map was fitted on, so it flatters the map; fit on one period and score another to judge it.
+-- $min_deals (integer): closed deals an owner needs at a stage for a map of their own; others use the stage's map (default: 60)
+-- reads: closed_deals(owner_id, stage_at_snapshot, stated_prob number, won)
+-- brier_calibrated is measured on the deals the map was fitted on, so it flatters the map; fit on one period and score another to judge it.
 WITH usable AS (
     SELECT owner_id, stage_at_snapshot AS stage, stated_prob, won
     FROM closed_deals

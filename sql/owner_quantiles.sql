@@ -1,13 +1,20 @@
 -- P10/P50/P90 of each owner's won total and the gap from each to the owner's target.
--- $period: quota period to read from quota_bands (default: 2027-Q1)
--- Tables: pipeline, quota_bands.
-WITH q AS (
+-- reads: pipeline(owner_id, amount number, win_prob number; deal_id)
+-- reads: ; quota_bands(owner_id; target number, period)
+-- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
+-- An owner without a target (or without quota_bands) gets NULL gaps.
+WITH quota AS (
+    SELECT owner_id, target
+    FROM quota_bands
+    WHERE period IS NULL OR period = $period
+),
+q AS (
     SELECT p.owner_id,
            sum(p.amount * p.win_prob) AS expected_value,
            total_quantiles(p.amount, p.win_prob, [0.1, 0.5, 0.9]) AS pq,
            any_value(b.target) AS target
     FROM pipeline AS p
-    JOIN quota_bands AS b ON b.owner_id = p.owner_id AND b.period = $period
+    LEFT JOIN quota AS b USING (owner_id)
     GROUP BY p.owner_id
 )
 SELECT owner_id, target,

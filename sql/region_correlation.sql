@@ -1,13 +1,20 @@
 -- For each region, the odds of landing below, inside and above its summed quota bands with deals independent and with correlated deals, side by side.
--- $rho: correlation between the deals of one region, in [0, 1) (default: 0.15)
--- $period: quota period to read from quota_bands (default: 2027-Q1)
--- Tables: pipeline, quota_bands, owners. The correlated odds are exact (one-factor Gaussian copula).
+-- reads: pipeline(region, amount number, win_prob number; deal_id)
+-- reads: quota_bands(owner_id, target number; floor number, stretch number, period), owners(owner_id, region)
+-- $rho (number): correlation between the deals of one region, in [0, 1) (default: 0.15)
+-- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
+-- The correlated odds are exact (one-factor Gaussian copula). A region's cut is the sum of
+-- its owners' cuts, present only when each of its quota rows has it; the bands lists have
+-- one probability per band of the cuts present.
 WITH bands AS (
     SELECT w.region,
-           sum(q.floor) AS floor, sum(q.target) AS target, sum(q.stretch) AS stretch
+           CASE WHEN count(q.floor) = count(*) THEN sum(q.floor) END AS floor,
+           CASE WHEN count(q.target) = count(*) THEN sum(q.target) END AS target,
+           CASE WHEN count(q.stretch) = count(*) THEN sum(q.stretch) END AS stretch
     FROM quota_bands AS q
-    JOIN owners AS w USING (owner_id)
-    WHERE q.period = $period
+    JOIN (SELECT owner_id, any_value(region) AS region FROM owners GROUP BY owner_id) AS w
+        USING (owner_id)
+    WHERE q.period IS NULL OR q.period = $period
     GROUP BY w.region
 ),
 odds AS (
@@ -21,10 +28,14 @@ odds AS (
 SELECT o.region,
        round(o.expected_value) AS expected_value,
        b.floor, b.target, b.stretch,
-       outcome_bands(o.independent, [b.floor, b.target, b.stretch]) AS independent_bands,
-       outcome_bands(o.correlated, [b.floor, b.target, b.stretch]) AS correlated_bands,
+       outcome_bands(o.independent, coalesce(list_filter([b.floor, b.target, b.stretch],
+                                                         lambda c: c IS NOT NULL), [])::DOUBLE[])
+           AS independent_bands,
+       outcome_bands(o.correlated, coalesce(list_filter([b.floor, b.target, b.stretch],
+                                                        lambda c: c IS NOT NULL), [])::DOUBLE[])
+           AS correlated_bands,
        round(outcome_sd(o.independent)) AS independent_sd,
        round(outcome_sd(o.correlated)) AS correlated_sd
 FROM odds AS o
-JOIN bands AS b USING (region)
+LEFT JOIN bands AS b USING (region)
 ORDER BY o.region;

@@ -1,12 +1,14 @@
 -- Region and company totals rolled up from per-owner outcomes with outcome_merge: mean, spread and P10/P50/P90.
--- Tables: pipeline. Each owner's outcome is computed once, then merged; deals are not touched again.
+-- reads: pipeline(owner_id, region, amount number, win_prob number; deal_id)
+-- Each owner's outcome is computed once, then merged; deals are not touched again.
 WITH owner_outcomes AS (
     SELECT owner_id, region, outcome_dist(amount, win_prob) AS outcome
     FROM pipeline
     GROUP BY owner_id, region
 ),
 rolled AS (
-    SELECT coalesce(region, '(company)') AS region,
+    SELECT CASE WHEN grouping(region) = 1 THEN '(company)'
+                ELSE coalesce(region, '(no region)') END AS region,
            count(*) AS owners,
            outcome_merge(outcome) AS outcome
     FROM owner_outcomes
@@ -20,4 +22,4 @@ SELECT region, owners,
        round(outcome_quantiles(outcome, [0.1, 0.5, 0.9])[3]) AS p90,
        round(outcome.rounding) AS rounding
 FROM rolled
-ORDER BY region = '(company)', region;
+ORDER BY region = '(company)', region = '(no region)', region;

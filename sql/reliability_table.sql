@@ -1,7 +1,8 @@
 -- How often closed deals were won by stated-probability bin, with 95% Wilson intervals: the reliability table.
 -- Columns: deals, mean stated probability, observed win rate, gap, wilson_lo/hi; 'sqlrisk chart reliability_table' draws it.
--- $bins: number of equal-width stated-probability bins on [0, 1]; a probability of 1 goes in the last (default: 10)
--- Tables: closed_deals (stated_prob, won). Rows with a NULL stated_prob or won are left out; empty bins show 0 deals.
+-- $bins (integer): number of equal-width stated-probability bins on [0, 1]; a probability of 1 goes in the last (default: 10)
+-- reads: closed_deals(stated_prob number, won)
+-- Rows with a NULL stated_prob or won are left out; empty bins show 0 deals.
 -- The bins are the ones brier_parts uses: bin k holds k/bins <= stated_prob < (k+1)/bins.
 WITH edges AS (
     SELECT k AS bin, k / $bins::INTEGER AS lo, (k + 1) / $bins::INTEGER AS hi,

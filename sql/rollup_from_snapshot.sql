@@ -1,20 +1,27 @@
 -- Region and company odds rolled up from the owner outcomes stored by nightly_snapshot, without touching the deals.
--- $as_of: which snapshot to roll up, e.g. 2026-11-30
--- Tables: band_history (written by: sqlrisk run nightly_snapshot ... --into band_history).
+-- reads: band_history(as_of date, region, floor number, target number, stretch number, outcome)
+-- $as_of (date): which snapshot to roll up, e.g. 2026-11-30
+-- band_history is written by: sqlrisk run nightly_snapshot ... --into band_history. A region's
+-- cut is the sum of its owners' cuts, present only when each owner has it; bands has one
+-- probability per band of the cuts present.
 WITH rolled AS (
-    SELECT coalesce(region, '(company)') AS region,
+    SELECT CASE WHEN grouping(region) = 1 THEN '(company)'
+                ELSE coalesce(region, '(no region)') END AS region,
            count(*) AS owners,
-           sum(floor) AS floor, sum(target) AS target, sum(stretch) AS stretch,
+           CASE WHEN count(floor) = count(*) THEN sum(floor) END AS floor,
+           CASE WHEN count(target) = count(*) THEN sum(target) END AS target,
+           CASE WHEN count(stretch) = count(*) THEN sum(stretch) END AS stretch,
            outcome_merge(outcome) AS outcome
     FROM band_history
-    WHERE as_of = $as_of::DATE
+    WHERE as_of = $as_of
     GROUP BY ROLLUP (region)
 )
 SELECT region, owners,
        round(outcome_mean(outcome)) AS expected_value,
        floor, target, stretch,
-       outcome_bands(outcome, [floor, target, stretch]) AS bands,
+       outcome_bands(outcome, coalesce(list_filter([floor, target, stretch],
+                                                   lambda c: c IS NOT NULL), [])::DOUBLE[]) AS bands,
        outcome_quantiles(outcome, [0.1, 0.5, 0.9]) AS p10_p50_p90,
        round(outcome.rounding) AS rounding
 FROM rolled
-ORDER BY region = '(company)', region;
+ORDER BY region = '(company)', region = '(no region)', region;

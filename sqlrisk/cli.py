@@ -14,7 +14,7 @@ import duckdb
 import typer
 
 from . import demo as demo_module
-from . import chart_rows, queries, result_writer, runner
+from . import chart_rows, project_config, queries, result_writer, runner
 from .adapters.registry import connect
 from .errors import SqlriskError
 
@@ -44,6 +44,16 @@ def clean_error(exc: Exception) -> str:
     return text
 
 
+def _text_param_hint(exc: Exception, saved, param: list[str]) -> str:
+    """For a type error in a query whose parameters are untyped text: say how to type them."""
+    if not isinstance(exc, duckdb.BinderException) or saved is None or saved.declares_params \
+            or not param:
+        return ""
+    first = param[0].partition("=")[0]
+    return (f" (--param values of a query without a parameter header are text: declare "
+            f"'-- ${first} (number): ...' in its header, or write ${first}::DOUBLE)")
+
+
 @app.command()
 def demo(
     out_dir: Path = typer.Option(Path("out"), "--output-dir",
@@ -62,59 +72,123 @@ def demo(
 
 @app.command("queries")
 def list_saved() -> None:
-    """List the saved queries in sql/ with what each answers and its parameters.
+    """List the saved queries in sql/: what each answers, the tables and columns it reads
+    (optional ones after the ';') and its parameters.
 
     Example: sqlrisk queries
     """
     for q in queries.list_queries():
         typer.echo(f"{q.name}\n    {q.description}")
+        for read in q.reads:
+            typer.echo(f"    reads {read.describe()}")
         for p in q.params:
-            typer.echo(f"    --param {p.name}=...  {p.help}")
+            kind = f" ({p.kind})" if p.kind != "text" else ""
+            typer.echo(f"    --param {p.name}=...{kind}  {p.help}")
 
 
-QUERY_HELP = "A saved query's name (see 'sqlrisk queries') or a path to a .sql file."
+QUERY_HELP = ("A saved query's name (see 'sqlrisk queries'), a path to a .sql file, or - to "
+              "read the SQL from standard input.")
 DB_HELP = "DuckDB database file to open (default: a new in-memory database)."
-SOURCE_HELP = ("Expose a Parquet or CSV file (or glob) as a view: NAME=PATH, e.g. "
+SOURCE_HELP = ("Where a table the query reads comes from: TABLE=PATH for a Parquet or CSV file "
+               "(or glob), or TABLE=OTHER_TABLE of --db, e.g. "
                "--source pipeline=extracts/pipeline_*.parquet. Repeatable.")
+COLUMN_HELP = ("Map a column the query reads onto your own: TABLE.NAME=SQL_EXPRESSION over the "
+               "source's columns, e.g. --column pipeline.owner_id=rep --column "
+               "pipeline.win_prob='probability / 100'. Repeatable; overrides sqlrisk.toml.")
+CONFIG_HELP = ("Project file with [tables.NAME] source and columns (default: ./sqlrisk.toml "
+               "when it exists).")
 PARAM_HELP = ("A query parameter: NAME=VALUE, bound as a prepared-statement value ($NAME), "
-              "never pasted into the SQL. Repeatable.")
+              "never pasted into the SQL, converted to the type its header line gives "
+              "(-- $name (date|number|integer|text): ...). A .sql file whose header lists no "
+              "parameters gets every $name it uses as text. Repeatable.")
+SQL_HELP = "Run this SQL text instead of a saved query or file (a header comment is optional)."
+STRICT_HELP = "Treat every warning about the inputs as an error: exit 1, nothing written."
 
 
 def _interactive() -> bool:
     return sys.stderr.isatty()
 
 
-def _open(db: Optional[str], sources: list[str], write: bool = False) -> duckdb.DuckDBPyConnection:
+def _query(query: Optional[str], sql: Optional[str]) -> queries.SavedQuery:
+    """The query to run: --sql text, - (standard input), a saved name or a .sql path."""
+    if sql is not None:
+        if query is not None:
+            raise typer.BadParameter("give a QUERY or --sql, not both", param_hint="--sql")
+        return queries.from_text(sql, "--sql")
+    if query is None:
+        raise typer.BadParameter("give a saved query's name, a .sql file, - (standard input) "
+                                 "or --sql TEXT", param_hint="QUERY")
+    if query == "-":
+        return queries.from_text(sys.stdin.read(), "stdin")
+    return queries.find(query)
+
+
+def _open(db: Optional[str], write: bool = False) -> tuple[duckdb.DuckDBPyConnection, bool]:
+    """The connection, and whether its database file was created by this run."""
+    created = write and db not in (None, ":memory:") and not Path(db).exists()
     # Read-only unless the run writes (--into): reading works on a read-only file or share.
-    con = runner.open_database(db, read_only=not write and db is not None)
+    con = runner.open_database(db, read_only=not write and db is not None, create=created)
     con.execute(f"SET enable_progress_bar = {str(_interactive()).lower()}")
-    runner.attach_sources(con, runner.split_pairs(sources, "--source"))
-    return con
+    return con, created
+
+
+def _remove_database(db: str) -> None:
+    """A database this run created, removed after a failure: nothing is left behind."""
+    for path in (Path(db), Path(db + ".wal")):
+        path.unlink(missing_ok=True)
+
+
+def _prepare(con, saved, params, config, source, column, strict) -> None:
+    specs = project_config.table_specs(config, runner.split_pairs(source, "--source"), column)
+    try:
+        warnings = runner.prepare_inputs(con, saved, params, specs, strict=strict)
+    except SqlriskError as exc:
+        warnings = getattr(exc, "warnings", [])
+        for line in warnings:
+            typer.echo(f"warning: {line}", err=True)
+        raise
+    for line in warnings:
+        typer.echo(f"warning: {line}", err=True)
 
 
 @app.command()
 def run(
-    query: str = typer.Argument(..., help=QUERY_HELP),
+    query: Optional[str] = typer.Argument(None, help=QUERY_HELP),
+    sql: Optional[str] = typer.Option(None, "--sql", help=SQL_HELP),
     db: Optional[str] = typer.Option(None, "--db", help=DB_HELP),
     source: list[str] = typer.Option([], "--source", help=SOURCE_HELP),
+    column: list[str] = typer.Option([], "--column", help=COLUMN_HELP),
+    config: Optional[str] = typer.Option(None, "--config", help=CONFIG_HELP),
     param: list[str] = typer.Option([], "--param", "-p", help=PARAM_HELP),
     into: Optional[str] = typer.Option(
-        None, "--into", help="Write the result into this table of --db (created if missing), "
-                             "in one transaction: a failure leaves the table as it was."),
+        None, "--into", help="Write the result into this table of --db (the table and the "
+                             "file are created if missing), in one transaction: a failure "
+                             "leaves the table as it was. No rows is an error."),
     replace_rows: Optional[str] = typer.Option(
         None, "--replace-rows", help="With --into: first delete the table's rows where "
                                      "COLUMN=VALUE, in the same transaction, so re-running a "
-                                     "night replaces its rows, e.g. --replace-rows as_of=2026-11-30."),
+                                     "night replaces its rows, e.g. --replace-rows as_of=2026-11-30. "
+                                     "Every result row must have COLUMN=VALUE, or nothing is "
+                                     "written."),
+    allow_empty: bool = typer.Option(False, "--allow-empty",
+                                     help="With --into: a result of no rows writes nothing and "
+                                          "succeeds (default: an error)."),
+    strict: bool = typer.Option(False, "--strict", help=STRICT_HELP),
     fmt: str = typer.Option("table", "--format", help="table, csv, json (one object per line) "
                                                        "or parquet (needs --output)."),
     out: Optional[str] = typer.Option(None, "--output", "-o",
                                       help="Write the result to this file instead of printing."),
 ) -> None:
-    """Run a saved query (or a .sql file) and print or store its result.
+    """Run a saved query (or a .sql file, or SQL text) and print or store its result.
+
+    Before computing, every table and column the query declares is checked, and what
+    would be skipped or double counted (NULL amounts, duplicate deal_id, owners without
+    a quota, percentage probabilities) is reported on stderr.
 
     Examples:
-      sqlrisk run owner_band_odds
+      sqlrisk run owner_band_odds --source pipeline=deals.csv --column pipeline.owner_id=rep
       sqlrisk run owner_band_odds --source pipeline=pipeline.parquet --format csv
+      sqlrisk run --sql "SELECT band_odds(amount, win_prob, [1e5]) FROM pipeline" --db f.duckdb
       sqlrisk run nightly_snapshot --db forecast.duckdb -p as_of=2026-11-30 --into band_history --replace-rows as_of=2026-11-30
     """
     if replace_rows is not None and into is None:
@@ -122,23 +196,32 @@ def run(
     if fmt not in result_writer.FORMATS:
         raise typer.BadParameter(f"{fmt!r} is not one of {', '.join(result_writer.FORMATS)}",
                                  param_hint="--format")
+    created = False
     try:
-        saved = queries.find(query)
+        saved = _query(query, sql)
         params = runner.split_pairs(param, "--param")
         key = None
         if replace_rows is not None:
             key = tuple(runner.split_pairs([replace_rows], "--replace-rows").items())[0]
-        con = _open(db, source, write=into is not None)
+        con, created = _open(db, write=into is not None)
         try:
-            result = runner.run_query(con, saved, params, into=into, replace_rows=key)
+            _prepare(con, saved, params, config, source, column, strict)
+            result = runner.run_query(con, saved, params, into=into, replace_rows=key,
+                                      allow_empty=allow_empty)
         finally:
             con.close()
+        if created:  # said once the run has succeeded: a failed first night removes the file
+            typer.echo(f"created database {db}", err=True)
+        created = False
         if result.into is not None and out is None and fmt == "table":
             typer.echo(f"wrote {result.written} rows into {result.into}")
             return
         result_writer.write(result.table, fmt, out)
     except (SqlriskError, duckdb.Error) as exc:
-        fail(clean_error(exc))
+        if created:
+            _remove_database(db)
+        hint = _text_param_hint(exc, saved if "saved" in locals() else None, param)
+        fail(clean_error(exc).split(". ")[0] + hint if hint else clean_error(exc))
 
 
 @app.command()
@@ -156,7 +239,10 @@ def chart(
                              "'cuts' column, if it has one)."),
     db: Optional[str] = typer.Option(None, "--db", help=DB_HELP),
     source: list[str] = typer.Option([], "--source", help=SOURCE_HELP),
+    column: list[str] = typer.Option([], "--column", help=COLUMN_HELP),
+    config: Optional[str] = typer.Option(None, "--config", help=CONFIG_HELP),
     param: list[str] = typer.Option([], "--param", "-p", help=PARAM_HELP),
+    strict: bool = typer.Option(False, "--strict", help=STRICT_HELP),
 ) -> None:
     """Draw the distribution of the total for each row of a query that returns an outcome,
     or a reliability diagram for a query that returns bins like reliability_table.
@@ -178,10 +264,12 @@ def chart(
         raise typer.BadParameter(f"{cuts!r} is not a comma-separated list of numbers",
                                  param_hint="--cuts") from None
     try:
-        con = _open(db, source)
+        saved = queries.find(query)
+        params = runner.split_pairs(param, "--param")
+        con, _ = _open(db)
         try:
-            result = runner.run_query(con, queries.find(query),
-                                      runner.split_pairs(param, "--param"))
+            _prepare(con, saved, params, config, source, column, strict)
+            result = runner.run_query(con, saved, params)
             written = chart_rows.draw_rows(con, result.table, out, where=where, cuts=cut_values)
         finally:
             con.close()

@@ -1,9 +1,8 @@
-"""Saved queries: the ``.sql`` files in ``sql/`` and their header comments.
+"""Saved queries: the ``.sql`` files in ``sql/``, a .sql file by path, or SQL text.
 
-A saved query starts with comment lines: the first says what it answers, and
-each parameter has a line ``-- $name: what it is (default: value)``. Parameters
-are bound by DuckDB as prepared-statement values (``$name``), never pasted
-into the SQL text.
+A query's header comment (``query_header``) says what it answers, its typed
+``$parameters`` and the tables and columns it reads. Parameters are bound by
+DuckDB as prepared-statement values (``$name``), never pasted into the SQL text.
 """
 
 from __future__ import annotations
@@ -15,6 +14,7 @@ from importlib import resources
 from pathlib import Path
 
 from .errors import QueryLookupError, SqlriskError, did_you_mean
+from .query_header import Param, TableRead, parse_header
 
 
 def _shipped_folder(package: str) -> Path:
@@ -46,8 +46,6 @@ def _shipped_folder(package: str) -> Path:
 # install, the installed sqlrisk/ package of a wheel. The demo names saved queries by their
 # path below it (sql/owner_band_odds.sql either way).
 PACKAGE_ROOT = _shipped_folder("sqlrisk.sql").parent
-_PARAM_LINE = re.compile(r"^--\s*\$(\w+)\s*:\s*(.*)$")
-_DEFAULT = re.compile(r"\(default:\s*([^)]*)\)\s*$")
 _PARAM_USE = re.compile(r"(?<![\w$])\$([A-Za-z_]\w*)")
 
 
@@ -64,44 +62,32 @@ def seeds_dir() -> Path:
 
 
 @dataclass
-class Param:
-    name: str
-    help: str
-    default: str | None = None
-
-
-@dataclass
 class SavedQuery:
     name: str
-    path: Path
+    path: Path | None
     description: str
     params: list[Param] = field(default_factory=list)
     sql: str = ""
+    reads: list[TableRead] = field(default_factory=list)
 
     def param_names(self) -> list[str]:
         return [p.name for p in self.params]
 
+    @property
+    def declares_params(self) -> bool:
+        """Whether the header lists parameters; a plain .sql file binds any --param as text."""
+        return bool(self.params)
+
+
+def from_text(text: str, name: str, path: Path | None = None) -> SavedQuery:
+    """A query from SQL ``text`` and its header comment."""
+    header = parse_header(text, name)
+    return SavedQuery(name, path, header.description, header.params, text, header.reads)
+
 
 def parse(path: Path) -> SavedQuery:
     """Read a ``.sql`` file and its header comment."""
-    text = path.read_text()
-    description = ""
-    params = []
-    for line in text.splitlines():
-        stripped = line.strip()
-        if not stripped.startswith("--"):
-            if stripped:
-                break
-            continue
-        match = _PARAM_LINE.match(stripped)
-        if match:
-            help_text = match.group(2).strip()
-            default = _DEFAULT.search(help_text)
-            params.append(Param(match.group(1), help_text,
-                                default.group(1).strip() if default else None))
-        elif not description:
-            description = stripped.lstrip("-").strip()
-    return SavedQuery(path.stem, path, description, params, text)
+    return from_text(path.read_text(), path.stem, path)
 
 
 def used_params(sql: str) -> set[str]:
@@ -131,9 +117,16 @@ def find(name_or_path: str) -> SavedQuery:
     return names[name_or_path]
 
 
-def bind(query: SavedQuery, given: dict[str, str]) -> dict[str, str]:
-    """Parameter values for ``query``: given ones, then defaults; unknown or missing is an error."""
-    expected = query.param_names()
+def bind(query: SavedQuery, given: dict[str, str]) -> dict[str, object]:
+    """Parameter values for ``query``: given ones, then defaults, each converted to its type.
+
+    A query whose header lists no parameters takes the ``$names`` its SQL uses, as text.
+    An unknown, missing or unconvertible parameter is a one-line error.
+    """
+    params = query.params
+    if not query.declares_params:
+        params = [Param(n, "text") for n in sorted(used_params(query.sql))]
+    expected = [p.name for p in params]
     for name in given:
         if name not in expected:
             listing = ", ".join(expected) or "none"
@@ -141,13 +134,13 @@ def bind(query: SavedQuery, given: dict[str, str]) -> dict[str, str]:
                 f"run: {query.name} has no parameter {name!r}{did_you_mean(name, expected)} "
                 f"(it takes: {listing})")
     values = {}
-    for p in query.params:
+    for p in params:
         if p.name in given:
-            values[p.name] = given[p.name]
+            values[p.name] = p.convert(given[p.name], query.name)
         elif p.default is not None:
-            values[p.name] = p.default
+            values[p.name] = p.convert(p.default, query.name)
         else:
-            listing = ", ".join(f"{q.name}" for q in query.params)
+            listing = ", ".join(q.name for q in params)
             raise QueryLookupError(
                 f"run: {query.name} needs --param {p.name}=... ({p.help}); it takes: {listing}")
     return values

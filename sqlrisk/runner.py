@@ -1,12 +1,11 @@
-"""Running a saved query: sources, bound parameters, and atomic writes into tables.
+"""Running a saved query: its inputs, bound parameters, and atomic writes into tables.
 
-Used by the CLI's ``run`` and ``chart`` commands; no terminal output here.
+Used by the CLI's ``run`` and ``chart`` commands; no terminal output here (warnings
+are returned as lines for the caller to print).
 """
 
 from __future__ import annotations
 
-import glob
-import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -14,13 +13,11 @@ from pathlib import Path
 import duckdb
 import pyarrow as pa
 
-from . import queries
+from . import input_checks, inputs, queries
 from .errors import InputDataError, ParameterError, QueryLookupError, SqlriskError
 from .adapters.registry import connect
 
 _IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
-_FORMATS = {".parquet": "read_parquet", ".pq": "read_parquet", ".csv": "read_csv",
-            ".tsv": "read_csv", ".txt": "read_csv", ".gz": "read_csv"}
 RESULT = "__sqlrisk_result"
 
 
@@ -44,13 +41,20 @@ def split_pairs(pairs: list[str], option: str) -> dict[str, str]:
     return out
 
 
-def open_database(db: str | None, read_only: bool = False) -> duckdb.DuckDBPyConnection:
-    """A registered connection to ``db`` (in memory when None), with one-line errors."""
+def open_database(db: str | None, read_only: bool = False,
+                  create: bool = False) -> duckdb.DuckDBPyConnection:
+    """A registered connection to ``db`` (in memory when None), with one-line errors.
+
+    A file that does not exist is an error unless ``create`` (a run that writes).
+    """
     if db is not None and db != ":memory:":
         path = Path(db)
-        if not path.exists():
-            raise QueryLookupError(f"run: database file {db!r} does not exist "
-                                   "(check the path; DuckDB creates files only when asked)")
+        if not path.exists() and not create:
+            raise QueryLookupError(f"run: database file {db!r} does not exist (check the path; "
+                                   "a run with --into creates it)")
+        if not path.exists() and not path.parent.is_dir():
+            raise QueryLookupError(f"run: cannot create database {db!r}: folder "
+                                   f"{str(path.parent)!r} does not exist")
     try:
         return connect(db, read_only=read_only)
     except duckdb.IOException as exc:
@@ -64,24 +68,23 @@ def open_database(db: str | None, read_only: bool = False) -> duckdb.DuckDBPyCon
         raise SqlriskError(f"run: cannot open database {db!r}: {' '.join(text.split())}") from None
 
 
-def attach_sources(con: duckdb.DuckDBPyConnection, sources: dict[str, str]) -> None:
-    """Expose each Parquet/CSV file (or glob) as a TEMP view with the given name."""
-    for name, path in sources.items():
-        view = quote_ident(name, "source")
-        reader = _FORMATS.get(Path(path).suffix.lower())
-        if reader is None:
-            raise InputDataError(f"run: source {name}={path!r} is not a .parquet or .csv file")
-        if not glob.glob(os.path.expanduser(path)):
-            raise InputDataError(f"run: source {name}={path!r}: no such file")
-        try:
-            # A view cannot hold a prepared parameter: the path goes in as a quoted literal.
-            literal = "'" + os.path.expanduser(path).replace("'", "''") + "'"
-            con.execute(f"CREATE OR REPLACE TEMP VIEW {view} AS SELECT * FROM {reader}({literal})")
-            con.execute(f"SELECT * FROM {view} LIMIT 0").fetchall()
-        except duckdb.Error as exc:
-            first = str(exc).split("\nLINE ")[0]  # not the internal view's SQL
-            raise InputDataError(f"run: source {name}={path!r} cannot be read as "
-                                 f"{reader[5:]}: {' '.join(first.split())[:200]}") from None
+def prepare_inputs(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery,
+                   params: dict[str, str], specs: dict[str, inputs.TableSpec],
+                   strict: bool = False) -> list[str]:
+    """Make the query's tables from ``specs`` and return the warnings about them.
+
+    With ``strict`` a warning is an error (raised after all were collected, so the
+    caller can show them first: they are on the exception's ``warnings``).
+    """
+    values = queries.bind(query, params)  # a bad parameter is reported before any input
+    inputs.prepare(con, query.name, query.reads, specs)
+    warnings = input_checks.check(con, query.reads, values)
+    if strict and warnings:
+        error = InputDataError(f"run: --strict: {len(warnings)} warning(s) about the inputs "
+                               "(above); nothing computed or written")
+        error.warnings = warnings
+        raise error
+    return warnings
 
 
 def query_text(query: queries.SavedQuery) -> str:
@@ -96,30 +99,65 @@ class RunResult:
     into: str | None = None
 
 
+def _shown(values: dict) -> str:
+    return ", ".join(f"{k}={v}" for k, v in values.items()) or "none"
+
+
+def _check_replace_key(con, query: queries.SavedQuery, key: tuple[str, str]) -> None:
+    """Every result row has COLUMN = VALUE, or nothing is written."""
+    name, value = key
+    types = dict(r[:2] for r in con.execute(f"DESCRIBE {RESULT}").fetchall())
+    if name not in types:
+        raise ParameterError(f"run: --replace-rows column {name!r} is not in the query's "
+                             f"result (it has: {', '.join(types)})")
+    column = quote_ident(name, "column")
+    try:
+        other, total = con.execute(
+            f"SELECT count(*) FILTER (WHERE {column} IS DISTINCT FROM CAST($v AS {types[name]})), "
+            f"count(*) FROM {RESULT}", {"v": value}).fetchall()[0]
+    except duckdb.ConversionException:
+        raise ParameterError(f"run: --replace-rows {name}={value!r}: {value!r} is not a "
+                             f"{types[name]} like the result's {name} column") from None
+    if other:
+        found = [str(r[0]) for r in con.execute(
+            f"SELECT DISTINCT {column} FROM {RESULT} WHERE {column} IS DISTINCT FROM "
+            f"CAST($v AS {types[name]}) LIMIT 3", {"v": value}).fetchall()]
+        raise ParameterError(
+            f"run: --replace-rows {name}={value}, but {other} of {total} rows of {query.name} "
+            f"have {name} {', '.join(found)}; nothing written (give --replace-rows the value the "
+            f"query writes, e.g. the one given to -p {name})")
+
+
 def run_query(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery, params: dict[str, str],
-              into: str | None = None, replace_rows: tuple[str, str] | None = None) -> RunResult:
+              into: str | None = None, replace_rows: tuple[str, str] | None = None,
+              allow_empty: bool = False) -> RunResult:
     """Run ``query`` with bound ``params``; with ``into``, write the rows atomically.
 
     The write happens in one transaction: the result is computed into a temp
-    table, the target created if missing, the ``replace_rows`` key deleted,
-    and the rows inserted; any failure (or a kill) leaves the target as it was.
+    table, checked (every row has the ``replace_rows`` key; no rows is an error
+    unless ``allow_empty``), the target created if missing, the key's rows
+    deleted, and the rows inserted; any failure (or a kill) leaves the target as
+    it was.
     """
     values = queries.bind(query, params)
     sql = query_text(query)
     if into is None:
         return RunResult(con.sql(sql, params=values).to_arrow_table())
     target = quote_ident(into)
+    if "." not in into:
+        target = f'"main".{target}'  # not a TEMP view of the same name
     con.execute("BEGIN TRANSACTION")
     try:
         con.execute(f"CREATE OR REPLACE TEMP TABLE {RESULT} AS {sql}", values)
+        if not allow_empty and not con.execute(f"SELECT count(*) FROM {RESULT}").fetchall()[0][0]:
+            raise InputDataError(
+                f"run: {query.name} returned no rows (parameters: {_shown(values)}); nothing "
+                f"written into {into}: check the parameters and sources, or give --allow-empty")
+        if replace_rows is not None:
+            _check_replace_key(con, query, replace_rows)
         con.execute(f"CREATE TABLE IF NOT EXISTS {target} AS SELECT * FROM {RESULT} LIMIT 0")
         if replace_rows is not None:
             column = quote_ident(replace_rows[0], "column")
-            result_columns = [r[0] for r in con.execute(f"DESCRIBE {RESULT}").fetchall()]
-            if replace_rows[0] not in result_columns:
-                raise ParameterError(
-                    f"run: --replace-rows column {replace_rows[0]!r} is not in the query's "
-                    f"result (it has: {', '.join(result_columns)})")
             con.execute(f"DELETE FROM {target} WHERE {column} = ?", [replace_rows[1]])
         con.execute(f"INSERT INTO {target} BY NAME SELECT * FROM {RESULT}")
         written = con.execute(f"SELECT count(*) FROM {RESULT}").fetchall()[0][0]

@@ -247,15 +247,34 @@ def test_into_a_database_in_a_read_only_folder_names_the_cause(db_in_read_only_f
 
 # --- 3. missing database file ---------------------------------------------------------------
 
-@pytest.mark.parametrize("write", [False, True], ids=["read", "into"])
-def test_missing_database_file_is_reported_and_not_created(tmp_path, write):
+def test_missing_database_file_is_an_error_when_only_reading(tmp_path):
     query = tmp_path / "one.sql"
     query.write_text("-- One row.\nSELECT 2 AS x;\n")
     missing = tmp_path / "nonexistent.duckdb"
-    args = ["run", str(query), "--db", str(missing)] + (["--into", "t"] if write else [])
-    # source: runner.open_database ("DuckDB creates files only when asked"); CONVENTIONS.md "Errors"
-    assert_cli_one_line_error(invoke(*args), repr(str(missing)), "does not exist")
+    # rule (run --help, CONVENTIONS.md "Errors"): without --into a missing file is an error
+    assert_cli_one_line_error(invoke("run", str(query), "--db", str(missing)),
+                              repr(str(missing)), "does not exist")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["one.sql"]
+
+
+def test_into_a_missing_database_file_creates_it_and_says_so(tmp_path):
+    query = tmp_path / "one.sql"
+    query.write_text("-- One row.\nSELECT 2 AS x;\n")
+    db = tmp_path / "history.duckdb"
+    result = invoke("run", str(query), "--db", str(db), "--into", "t")
+    assert result.exit_code == 0, result.output
+    # rule (--into help): the first night creates the file, and says so on stderr
+    assert f"created database {db}" in result.stderr
+    assert rows(str(db), "SELECT * FROM t") == [(2,)]
+
+
+def test_a_failed_first_night_leaves_no_database_file_behind(tmp_path):
+    query = tmp_path / "none.sql"
+    query.write_text("-- No rows.\nSELECT 2 AS x WHERE false;\n")
+    db = tmp_path / "history.duckdb"
+    result = invoke("run", str(query), "--db", str(db), "--into", "t")
+    assert_cli_one_line_error(result, "returned no rows", "--allow-empty")
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["none.sql"]
 
 
 # --- 4. --source problems -------------------------------------------------------------------

@@ -140,7 +140,11 @@ def check_cuts(fn: str, cuts: np.ndarray, offsets: np.ndarray, what: str = "cuts
         raise ParameterError(f"{fn}: {what} contain {fmt(value)}; give finite totals")
     steps = np.diff(cuts)
     inner = np.ones(len(steps), dtype=bool)
-    inner[offsets[1:-1] - 1] = False  # ignore the step between two rows
+    # Ignore the step from one row's last cut to the next row's first. An empty row's
+    # boundary at 0 (or at the end) has no such step: -1 would wrap to the last one.
+    boundaries = offsets[1:-1]
+    boundaries = boundaries[(boundaries > 0) & (boundaries < len(cuts))]
+    inner[boundaries - 1] = False
     bad = inner & (steps <= 0) if len(steps) else inner
     if bad.any():
         i = np.flatnonzero(bad)[0]

@@ -1,0 +1,147 @@
+"""What a run is about to drop or double count, said before computing.
+
+The checks read the tables a query declares (after ``inputs.prepare`` made them)
+and return one warning line each, with counts and up to five example keys:
+
+- pipeline rows skipped because amount or win_prob is NULL (the SQL functions'
+  NULL rule skips them);
+- deal_id values that appear more than once in pipeline (each row counts as a deal);
+- owners in pipeline with no row in quota_bands (for the ``period`` parameter when
+  quota_bands has a period column); a period that no quota row has is an error;
+- win probabilities that look like percentages.
+
+Two rows of quota_bands for one owner (and period) are an error: the cuts would be
+ambiguous and the owner's deals counted once per row.
+
+Each check runs only when the query declares the tables and columns it needs.
+"""
+
+from __future__ import annotations
+
+from .errors import InputDataError
+from .query_header import TableRead
+
+EXAMPLES = 5
+
+
+def _has(reads: dict[str, TableRead], table: str, *columns: str) -> bool:
+    read = reads.get(table)
+    return read is not None and all(read.column(c) is not None for c in columns)
+
+
+def _examples(values) -> str:
+    shown = ", ".join(str(v) for v in values[:EXAMPLES])
+    return f" (e.g. {shown})" if shown else ""
+
+
+def _deal_key(con, reads) -> str:
+    """The expression naming a pipeline row in examples: deal_id when it has values."""
+    if _has(reads, "pipeline", "deal_id") and con.execute(
+            "SELECT count(deal_id) FROM pipeline").fetchall()[0][0]:
+        return "CAST(deal_id AS VARCHAR)"
+    return "'owner ' || CAST(owner_id AS VARCHAR)" if _has(reads, "pipeline", "owner_id") \
+        else "'row'"
+
+
+def null_rows(con, reads) -> list[str]:
+    if not _has(reads, "pipeline", "amount", "win_prob"):
+        return []
+    key = _deal_key(con, reads)
+    where = "amount IS NULL OR win_prob IS NULL"
+    count, total = con.execute(f"SELECT count(*) FILTER (WHERE {where}), count(*) "
+                               "FROM pipeline").fetchall()[0]
+    if not count:
+        return []
+    keys = [r[0] for r in con.execute(f"SELECT {key} FROM pipeline WHERE {where} "
+                                      f"LIMIT {EXAMPLES}").fetchall()]
+    return [f"pipeline: {count} of {total} rows skipped because amount or win_prob is NULL"
+            f"{_examples(keys)}; fill them in or filter them out to silence this"]
+
+
+def duplicate_deals(con, reads) -> list[str]:
+    if not _has(reads, "pipeline", "deal_id"):
+        return []
+    rows = con.execute("SELECT CAST(deal_id AS VARCHAR), count(*) FROM pipeline "
+                       "WHERE deal_id IS NOT NULL GROUP BY deal_id HAVING count(*) > 1 "
+                       "ORDER BY count(*) DESC, deal_id").fetchall()
+    if not rows:
+        return []
+    extra = sum(n for _, n in rows)
+    return [f"pipeline: {len(rows)} deal_id value(s) appear more than once ({extra} rows, each "
+            f"counted as a deal){_examples([f'{k} x{n}' for k, n in rows])}; keep one row "
+            "per deal"]
+
+
+def _quota_scope(con, reads, values: dict) -> tuple[str, dict, str]:
+    """The condition picking quota_bands rows of the run's period, its parameters and label.
+
+    The saved queries' rule: a quota row with no period applies to every period. A
+    period that no row has is an error (a wrong -p period would otherwise give every
+    owner NULL cuts).
+    """
+    period = values.get("period")
+    if period is None or not _has(reads, "quota_bands", "period") or not con.execute(
+            "SELECT count(period) FROM quota_bands").fetchall()[0][0]:
+        return "", {}, ""
+    in_period = " AND (q.period IS NULL OR q.period = $period)"
+    params = {"period": str(period)}
+    if not con.execute("SELECT count(*) FROM quota_bands AS q WHERE true" + in_period,
+                       params).fetchall()[0][0]:
+        periods = [r[0] for r in con.execute(
+            "SELECT DISTINCT CAST(period AS VARCHAR) FROM quota_bands ORDER BY 1 "
+            f"LIMIT {EXAMPLES + 1}").fetchall()]
+        more = ", ..." if len(periods) > EXAMPLES else ""
+        raise InputDataError(f"run: no row of quota_bands has period {period!r} (it has: "
+                             f"{', '.join(map(str, periods[:EXAMPLES]))}{more}); check -p period")
+    return in_period, params, f" for period {period}"
+
+
+def duplicate_quotas(con, in_period: str, params: dict, label: str) -> None:
+    doubled = [f"{o} x{n}" for o, n in con.execute(
+        "SELECT CAST(owner_id AS VARCHAR), count(*) FROM quota_bands AS q "
+        f"WHERE owner_id IS NOT NULL{in_period} "
+        f"GROUP BY owner_id HAVING count(*) > 1 ORDER BY 1 LIMIT {EXAMPLES}", params).fetchall()]
+    if doubled:
+        raise InputDataError(f"run: quota_bands has more than one row per owner{label} "
+                             f"({', '.join(doubled)}); keep one row per owner and period")
+
+
+def owners_without_quota(con, reads, values: dict) -> list[str]:
+    if not (_has(reads, "pipeline", "owner_id") and _has(reads, "quota_bands", "owner_id")):
+        return []
+    in_period, params, label = _quota_scope(con, reads, values)
+    duplicate_quotas(con, in_period, params, label)
+    missing = [r[0] for r in con.execute(
+        "SELECT DISTINCT CAST(p.owner_id AS VARCHAR) AS o FROM pipeline AS p WHERE "
+        "p.owner_id IS NOT NULL AND NOT EXISTS (SELECT 1 FROM quota_bands AS q WHERE "
+        f"q.owner_id = p.owner_id{in_period}) ORDER BY o", params).fetchall()]
+    if not missing:
+        return []
+    return [f"{len(missing)} owner(s) in pipeline have no row in quota_bands{label}"
+            f"{_examples(missing)}; their cuts are NULL, so their band columns are NULL"]
+
+
+def percent_probabilities(con, reads) -> list[str]:
+    if not _has(reads, "pipeline", "win_prob"):
+        return []
+    above, in_percent, total, top = con.execute(
+        "SELECT count(*) FILTER (WHERE win_prob > 1), "
+        "count(*) FILTER (WHERE win_prob > 1 AND win_prob <= 100), count(win_prob), "
+        "max(win_prob) FROM pipeline").fetchall()[0]
+    if not above:
+        return []
+    if in_percent == above and above * 2 >= total:
+        return [f"pipeline.win_prob: {above} of {total} probabilities are above 1 (largest "
+                f"{top:g}): percentages? map the column with --column "
+                "pipeline.win_prob='your_column / 100'"]
+    return [f"pipeline.win_prob: {above} of {total} probabilities are above 1 (largest "
+            f"{top:g}): a typo in the source?"]
+
+
+def check(con, reads: list[TableRead], values: dict) -> list[str]:
+    """The warning lines for a run of a query that declares ``reads`` with ``values``."""
+    declared = {r.table: r for r in reads}
+    return [*null_rows(con, declared), *duplicate_deals(con, declared),
+            *owners_without_quota(con, declared, values),
+            *percent_probabilities(con, declared)]
+
