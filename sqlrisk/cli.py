@@ -174,7 +174,11 @@ def run(
                                      help="With --into: a result of no rows writes nothing and "
                                           "succeeds (default: an error)."),
     strict: bool = typer.Option(False, "--strict", help=STRICT_HELP),
-    fmt: str = typer.Option("table", "--format", help="table, csv, json (one object per line) "
+    keep_outcomes: bool = typer.Option(False, "--keep-outcomes",
+                                       help="With --format csv: keep outcome columns, as JSON "
+                                            "text (by default CSV leaves them out)."),
+    fmt: str = typer.Option("table", "--format", help="table, csv (one column per list "
+                                                       "element), json (one object per line) "
                                                        "or parquet (needs --output)."),
     out: Optional[str] = typer.Option(None, "--output", "-o",
                                       help="Write the result to this file instead of printing."),
@@ -216,7 +220,7 @@ def run(
         if result.into is not None and out is None and fmt == "table":
             typer.echo(f"wrote {result.written} rows into {result.into}")
             return
-        result_writer.write(result.table, fmt, out)
+        result_writer.write(result.table, fmt, out, keep_outcomes=keep_outcomes)
     except (SqlriskError, duckdb.Error) as exc:
         if created:
             _remove_database(db)

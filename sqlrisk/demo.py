@@ -45,7 +45,7 @@ def _section(con, name: str, title: str, columns: list[str] | None = None,
     source = query.path.relative_to(queries.PACKAGE_ROOT) if query.path.is_relative_to(
         queries.PACKAGE_ROOT) else query.path
     return (f"{title}\n(from {source}: {query.description})\n\n"
-            + text_format.table(headers, rows, formats))
+            + text_format.table_text(headers, rows, formats))
 
 
 CHART_REGION = "Tidewater Bay"

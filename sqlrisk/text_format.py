@@ -1,10 +1,22 @@
-"""Plain-text tables for the terminal (no colours, no box drawing: they paste anywhere)."""
+"""Plain-text tables for the terminal (no colours, no box drawing: they paste anywhere).
+
+A query result's probabilities are shown as the demo shows them (``pct``): a column is
+a probability when its name reads like one (below_*, *_to_*, *_or_more, reach*, p_*,
+*bands*, *odds*, *swing*, *prob*, *_rate, stated_mean, wilson_*) and every value, or
+every element of its lists, is a number in [0, 1]. Outcomes show as one short label.
+"""
 
 from __future__ import annotations
 
 import decimal
 import math
+import re
 from collections.abc import Callable, Sequence
+
+import pyarrow as pa
+
+_PROBABILITY_NAME = re.compile(r"(^below_|_to_|_or_more$|^reach|^p_|bands|odds|swing|prob|"
+                               r"_rate$|^stated_mean$|^wilson_)")
 
 
 def money(x) -> str:
@@ -21,6 +33,39 @@ def pct(x) -> str:
     if 0.9995 < x < 1:
         return ">99.9%"
     return f"{100 * x:.1f}%"
+
+
+def pct_list(x) -> str:
+    return "" if x is None else "[" + ", ".join(pct(v) for v in x) + "]"
+
+
+def outcome_label(o) -> str:
+    if o is None:
+        return ""
+    kind = (f"{o['trials']:,} trials" if o["trials"] else
+            "exact" if o["rounding"] == 0 else f"lattice step {plain(o['step'])}")
+    return f"outcome({kind}, {len(o['mass']):,} points)"
+
+
+def _is_probability(name: str, values: list) -> bool:
+    if not _PROBABILITY_NAME.search(name):
+        return False
+    flat = [v for x in values if x is not None for v in (x if isinstance(x, list) else [x])]
+    return bool(flat) and all(isinstance(v, float) and 0.0 <= v <= 1.0 for v in flat)
+
+
+def result_table(table: pa.Table) -> str:
+    """A query result as a terminal table, probabilities and outcomes formatted."""
+    rows = table.to_pylist()
+    formats: dict[str, Callable] = {}
+    for field in table.schema:
+        values = [r[field.name] for r in rows]
+        if pa.types.is_struct(field.type) and {f.name for f in field.type} >= {"mass", "trials"}:
+            formats[field.name] = outcome_label
+        elif _is_probability(field.name, values):
+            formats[field.name] = pct_list if pa.types.is_list(field.type) else pct
+    names = table.column_names
+    return table_text(names, [[r[n] for n in names] for r in rows], formats)
 
 
 def plain(x) -> str:
@@ -43,7 +88,7 @@ def plain(x) -> str:
     return str(x)
 
 
-def table(headers: Sequence[str], rows: Sequence[Sequence],
+def table_text(headers: Sequence[str], rows: Sequence[Sequence],
           formats: dict[str, Callable] | None = None, max_width: int = 60) -> str:
     """Rows as aligned text: numbers right-aligned, text left-aligned."""
     formats = formats or {}
