@@ -118,7 +118,7 @@ def owners_without_quota(con, reads, values: dict) -> list[str]:
     if not missing:
         return []
     return [f"{len(missing)} owner(s) in pipeline have no row in quota_bands{label}"
-            f"{_examples(missing)}; their cuts are NULL, so their band columns are NULL"]
+            f"{_examples(missing)}; their cuts are NULL, and so are the columns that need them"]
 
 
 def percent_probabilities(con, reads) -> list[str]:
@@ -138,9 +138,12 @@ def percent_probabilities(con, reads) -> list[str]:
             f"{top:g}): a typo in the source?"]
 
 
-def check(con, reads: list[TableRead], values: dict) -> list[str]:
-    """The warning lines for a run of a query that declares ``reads`` with ``values``."""
-    declared = {r.table: r for r in reads}
+def check(con, reads: list[TableRead], values: dict, absent=()) -> list[str]:
+    """The warning lines for a run of a query that declares ``reads`` with ``values``.
+
+    Tables in ``absent`` (optional ones not given, read as empty) are not checked.
+    """
+    declared = {r.table: r for r in reads if r.table not in absent}
     return [*null_rows(con, declared), *duplicate_deals(con, declared),
             *owners_without_quota(con, declared, values),
             *percent_probabilities(con, declared)]

@@ -77,8 +77,8 @@ def prepare_inputs(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery,
     caller can show them first: they are on the exception's ``warnings``).
     """
     values = queries.bind(query, params)  # a bad parameter is reported before any input
-    inputs.prepare(con, query.name, query.reads, specs)
-    warnings = input_checks.check(con, query.reads, values)
+    prepared = inputs.prepare(con, query.name, query.reads, specs)
+    warnings = input_checks.check(con, query.reads, values, absent=prepared.empty)
     if strict and warnings:
         error = InputDataError(f"run: --strict: {len(warnings)} warning(s) about the inputs "
                                "(above); nothing computed or written")
