@@ -1,5 +1,5 @@
 -- For each region, the odds of landing below, inside and above its summed quota bands with deals independent and with correlated deals, side by side.
--- reads: pipeline(region, amount number, win_prob number; deal_id)
+-- reads: pipeline(region, amount number, win_prob number; owner_id, deal_id)
 -- reads: quota_bands(owner_id, target number; floor number, stretch number, period), owners(owner_id, region)
 -- $rho (number): correlation between the deals of one region, in [0, 1) (default: 0.15)
 -- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)

@@ -1,5 +1,5 @@
 -- Each region's outcome with its summed quota bands as cuts: the input for 'sqlrisk chart'.
--- reads: pipeline(region, amount number, win_prob number; deal_id)
+-- reads: pipeline(region, amount number, win_prob number; owner_id, deal_id)
 -- reads: quota_bands(owner_id, target number; floor number, stretch number, period), owners(owner_id, region)
 -- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
 -- A region's cut is the sum of its owners' cuts, present only when each of its quota rows has it.

@@ -118,7 +118,7 @@ def owners_without_quota(con, reads, values: dict) -> list[str]:
     if not missing:
         return []
     return [f"{len(missing)} owner(s) in pipeline have no row in quota_bands{label}"
-            f"{_examples(missing)}; their cuts are NULL, and so are the columns that need them"]
+            f"{_examples(missing)}; they have no cuts (NULL in per-owner results, left out of summed region cuts)"]
 
 
 def percent_probabilities(con, reads) -> list[str]:
