@@ -49,35 +49,54 @@ CASES = [
     Case("a group with no usable row",
          f"SELECT band_odds(amount, prob, [150.0]) FROM {deals(('NULL::DOUBLE', 0.5))}",
          "NULL"),
-    Case("probabilities typed as percentages",
+    Case("probabilities typed as percentages (every one in [0, 100], none between 0 and 1)",
+         f"SELECT band_odds(amount, prob, [150.0]) FROM {deals((100.0, 40.0), (200.0, 50.0))}",
+         "error: band_odds: probability 40.0 is outside [0, 1] (were percentages given? divide by "
+         "100): all 2 probabilities look like percentages (0-100), the first at the row with "
+         "amount 100.0"),
+    Case("a lone probability above 1 among fractions",
          f"SELECT band_odds(amount, prob, [150.0]) FROM {deals((100.0, 40.0), (200.0, 0.5))}",
-         "error: band_odds: probability 40.0 is outside [0, 1] (were percentages given? divide by 100)"),
+         "error: band_odds: probability 40.0 is outside [0, 1] (1 of 2 rows; a typo?) at the row "
+         "with amount 100.0"),
+    # A count is over the rows of the UDF call that failed: all of them without GROUP BY;
+    # with one, DuckDB may give the groups to several calls, and the message then says how
+    # many groups its rows come from ("3 of 290 rows in 5 groups"; tests/test_row_errors.py).
+    Case("rows sharing a problem (counted)",
+         f"SELECT band_odds(amount, prob, [150.0]) FROM {deals((100.0, -0.1), (200.0, 0.5), (300.0, -0.1))}",
+         "error: band_odds: probability -0.1 is outside [0, 1] (2 of 3 rows; use values in [0, 1]), "
+         "the first at the row with amount 100.0"),
+    Case("a bad probability beside NULL rows (skipped, so not counted)",
+         f"SELECT reach_odds(amount, prob, 50.0) FROM {deals((100.0, 1.5), ('NULL', 0.9), (200.0, 0.5))}",
+         "error: reach_odds: probability 1.5 is outside [0, 1] (1 of 2 rows; a typo?) at the row "
+         "with amount 100.0"),
     Case("a probability below 0",
          f"SELECT reach_odds(amount, prob, 50.0) FROM {deals((100.0, -0.2))}",
-         "error: reach_odds: probability -0.2 is outside [0, 1] (use values in [0, 1])"),
+         "error: reach_odds: probability -0.2 is outside [0, 1] (1 of 1 row; use values in [0, 1]) "
+         "at the row with amount 100.0"),
     Case("a NaN probability",
          f"SELECT band_odds(amount, prob, [150.0]) FROM {deals((100.0, NAN))}",
-         "error: band_odds: probability nan is not a number (from a failed join or a division by "
-         "zero? filter the row out or COALESCE it)"),
+         "error: band_odds: probability nan is not a number (1 of 1 row; from a failed join or a "
+         "division by zero? filter the row out or COALESCE it) at the row with amount 100.0"),
     Case("an infinite probability",
          f"SELECT outcome_dist(amount, prob) FROM {deals((100.0, INF))}",
-         "error: outcome_dist: probability inf is outside [0, 1] (use values in [0, 1])"),
+         "error: outcome_dist: probability inf is outside [0, 1] (1 of 1 row; from a division by "
+         "zero? filter the row out or COALESCE it) at the row with amount 100.0"),
     Case("a NaN amount",
          f"SELECT reach_odds(amount, prob, 50.0) FROM {deals((NAN, 0.5))}",
-         "error: reach_odds: amount nan is not a finite number (filter it out or COALESCE it to a "
-         "real amount)"),
+         "error: reach_odds: amount nan is not a finite number (1 of 1 row; filter it out or "
+         "COALESCE it to a real amount) at the row with probability 0.5"),
     Case("an infinite amount",
          f"SELECT outcome_sim(amount, prob) FROM {deals(('-' + INF, 0.5))}",
-         "error: outcome_sim: amount -inf is not a finite number (filter it out or COALESCE it to "
-         "a real amount)"),
+         "error: outcome_sim: amount -inf is not a finite number (1 of 1 row; filter it out or "
+         "COALESCE it to a real amount) at the row with probability 0.5"),
     Case("an amount beyond 1e15 (a unit mix-up)",
          f"SELECT band_odds(amount, prob, [0.0]) FROM {deals((2.5e18, 0.5))}",
-         "error: band_odds: amount 2.5e+18 is beyond +/-1e+15 (a unit mix-up? give amounts in a "
-         "larger unit, such as thousands)"),
+         "error: band_odds: amount 2.5e+18 is beyond +/-1e+15 (1 of 1 row; a unit mix-up? give "
+         "amounts in a larger unit, such as thousands) at the row with probability 0.5"),
     Case("a non-zero amount smaller than 1e-9",
          f"SELECT outcome_dist(amount, prob) FROM {deals((3e-12, 0.5), (100.0, 0.5))}",
-         "error: outcome_dist: amount 3e-12 is smaller than 1e-09 but not 0 (round such residues "
-         "to 0, or give amounts in a smaller unit)"),
+         "error: outcome_dist: amount 3e-12 is smaller than 1e-09 but not 0 (1 of 2 rows; round "
+         "such residues to 0, or give amounts in a smaller unit) at the row with probability 0.5"),
     Case("a negative amount (credit note)",
          f"SELECT band_odds(amount, prob, [0.0]) FROM {deals((-100.0, 0.5))}",
          "[0.5, 0.5]"),
@@ -194,6 +213,10 @@ CASES = [
          f"SELECT outcome_quantiles({outcome(step='1e300')}, [0.5])",
          "error: outcome_quantiles: malformed outcome: its largest total 1e+300 is beyond +/-1e+150; "
          "pass outcomes built by outcome_dist"),
+    Case("an outcome with a subnormal step",
+         f"SELECT outcome_add({outcome(step='5e-324')}, {outcome()})",
+         "error: outcome_add: malformed outcome: step 5e-324 is smaller than 1e-150; "
+         "pass outcomes built by outcome_dist"),
     Case("an outcome with a NULL field",
          f"SELECT outcome_mean({outcome(origin='NULL')})",
          "error: outcome_mean: an outcome has a NULL 'origin'; pass outcomes built by outcome_dist"),
@@ -203,8 +226,8 @@ CASES = [
          "outcome_dist"),
     Case("a non-finite shift",
          f"SELECT outcome_shift({outcome()}, {NAN})",
-         "error: outcome_shift: amount nan is not a finite number (filter it out or COALESCE it to "
-         "a real amount)"),
+         "error: outcome_shift: amount nan is not a finite number (1 of 1 row; filter it out or "
+         "COALESCE it to a real amount)"),
     Case("adding an exact and a simulated outcome",
          f"SELECT outcome_add({outcome()}, {outcome(mass='[0.25, 0.75]', trials='1000')}).trials",
          "1000"),    Case("a Wilson interval of no trials",

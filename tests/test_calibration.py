@@ -385,7 +385,7 @@ ERRORS = [
     ("SELECT calibration_map(p, w) FROM (VALUES (40, 1)) t(p, w)",
      "calibration_map: probability 40.0 is outside [0, 1] (were percentages given? divide by 100)"),
     ("SELECT brier_score(p, w) FROM (VALUES (-0.1, 1)) t(p, w)",
-     "brier_score: probability -0.1 is outside [0, 1] (use values in [0, 1])"),
+     "brier_score: probability -0.1 is outside [0, 1] (1 of 1 row; use values in [0, 1])"),
     ("SELECT calibration_map(p, w) FROM (VALUES (0.4, 2)) t(p, w)",
      "calibration_map: won 2 is not 0/1 or true/false (give 1 or true"),
     ("SELECT brier_parts(p, w) FROM (VALUES (0.4, 0.5)) t(p, w)",

@@ -37,3 +37,14 @@ def test_readme_table_is_generated_from_the_cases():
     text = policy.README.read_text()
     assert policy.readme_block(text) == policy.table(), (
         "README's input-policy table is stale: run `python -m tests.input_policy`")
+
+
+DEAL_VALUE_ERROR = re.compile(r"^error: \w+: (amount|probability) \S+ is ")
+
+
+@pytest.mark.parametrize("case", [c for c in policy.CASES if DEAL_VALUE_ERROR.match(c.expect)],
+                         ids=lambda c: c.input)
+def test_a_bad_amount_or_probability_counts_the_rows_sharing_it(case):
+    """The row checks' errors say how many of the call's rows share the problem."""
+    counted = r" \(\d[\d,]* of \d[\d,]* rows?( in \d[\d,]* groups)?;| all \d[\d,]* probabilities"
+    assert re.search(counted, case.expect), case.expect

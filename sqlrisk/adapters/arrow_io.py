@@ -25,6 +25,8 @@ AMOUNT_MAX = 1e15
 AMOUNT_MIN = 1e-9
 #: Totals an outcome may hold (their squares stay far from overflow).
 OUTCOME_MAX = 1e150
+#: Smallest non-zero lattice step an outcome may have.
+OUTCOME_MIN_STEP = 1e-150
 
 
 def as_array(values) -> pa.Array:
@@ -71,44 +73,122 @@ def read_groups(rows) -> Groups:
     return Groups(offsets - start, fields, np.asarray(arr.is_null(), dtype=bool))
 
 
-def check_probabilities(fn: str, prob: np.ndarray) -> None:
-    bad = ~((prob >= 0.0) & (prob <= 1.0))
-    if not bad.any():
-        return
-    value = prob[np.flatnonzero(bad)[0]]
-    if np.isnan(value):
-        raise InputDataError(f"{fn}: probability nan is not a number (from a failed join or a "
-                             "division by zero? filter the row out or COALESCE it)")
+# -- input checks that point at the row ------------------------------------------
+#
+# A value error names the first offending row by its other fields (``where``: label ->
+# values aligned with the checked ones, e.g. {"amount": amount}) and counts the checked
+# rows sharing the problem (NULL-skipped rows are not checked). The count covers this
+# UDF call: every row without GROUP BY; with one, DuckDB may split the groups over
+# several calls (a partition per thread), so a call holding several groups names how
+# many (``groups``). In a window each frame is a group: a row counts once per frame.
+
+def _shown(value) -> str:
+    """A row's field as an error message names it: numbers by ``fmt``, ids quoted."""
+    if isinstance(value, pa.Scalar):
+        value = value.as_py()
+    if value is None:
+        return "NULL"
+    if isinstance(value, (float, int, np.floating, np.integer)) and not isinstance(value, bool):
+        return fmt(value)
+    return f"'{value}'"
+
+
+def _in_groups(groups: int) -> str:
+    return f" in {groups:,} groups" if groups > 1 else ""
+
+
+def _at(where: dict | None, bad: np.ndarray) -> str:
+    """`` at the row with amount 100.0`` (the first offending row, when there are several)."""
+    if not where:
+        return ""
+    i = int(np.flatnonzero(bad)[0])
+    fields = ", ".join(f"{label} {_shown(values[i])}" for label, values in where.items())
+    lead = " at" if np.count_nonzero(bad) == 1 else ", the first at"
+    return f"{lead} the row with {fields}"
+
+
+def _row_error(fn: str, subject: str, bad: np.ndarray, fix: str, where, groups: int):
+    """``fn: subject (k of n rows; fix) at the row with ...``, one line."""
+    total = len(bad)
+    share = f"{np.count_nonzero(bad):,} of {total:,} row{'' if total == 1 else 's'}"
+    return InputDataError(f"{fn}: {subject} ({share}{_in_groups(groups)}; {fix})"
+                          f"{_at(where, bad)}")
+
+
+def _filter_out(bad: np.ndarray) -> str:
+    return ("filter the row out or COALESCE it" if np.count_nonzero(bad) == 1
+            else "filter the rows out or COALESCE them")
+
+
+def _looks_like_percentages(prob: np.ndarray) -> bool:
+    """Every finite value in [0, 100], none strictly between 0 and 1, and some above 1."""
     finite = prob[np.isfinite(prob)]
-    hint = "use values in [0, 1]"
-    if np.isfinite(value) and len(finite) and finite.min() >= 0 and finite.max() <= 100:
-        hint = "were percentages given? divide by 100"
-    raise InputDataError(f"{fn}: probability {fmt(value)} is outside [0, 1] ({hint})")
+    return bool(len(finite) and finite.min() >= 0 and 1 < finite.max() <= 100
+                and not ((finite > 0) & (finite < 1)).any())
 
 
-def check_amounts(fn: str, amount: np.ndarray, what: str = "amount") -> None:
+def check_probabilities(fn: str, prob: np.ndarray, where: dict | None = None,
+                        groups: int = 1) -> None:
+    """Probabilities in [0, 1]. ``where`` and ``groups``: see the comment above."""
+    outside = ~((prob >= 0.0) & (prob <= 1.0))
+    if not outside.any():
+        return
+    value = prob[np.flatnonzero(outside)[0]]
+    if np.isnan(value):
+        bad = np.isnan(prob)
+        raise _row_error(fn, "probability nan is not a number", bad, "from a failed join or a "
+                         f"division by zero? {_filter_out(bad)}", where, groups)
+    outside &= ~np.isnan(prob)
+    subject = f"probability {fmt(value)} is outside [0, 1]"
+    if np.isfinite(value) and _looks_like_percentages(prob):
+        finite = int(np.isfinite(prob).sum())
+        which = "probabilities" if finite == len(prob) else "finite probabilities"
+        column = ("the one probability looks like a percentage" if finite == 1 else
+                  f"all {finite:,} {which}{_in_groups(groups)} look like percentages (0-100)")
+        raise InputDataError(f"{fn}: {subject} (were percentages given? divide by 100): "
+                             f"{column}{_at(where, outside)}")
+    if not np.isfinite(value):
+        fix = f"from a division by zero? {_filter_out(outside)}"
+    elif np.count_nonzero(outside) == 1 < len(prob):
+        fix = "a typo?"
+    else:
+        fix = "use values in [0, 1]"
+    raise _row_error(fn, subject, outside, fix, where, groups)
+
+
+def check_amounts(fn: str, amount: np.ndarray, what: str = "amount",
+                  where: dict | None = None, groups: int = 1) -> None:
     """Finite amounts of a size money can have: |a| <= AMOUNT_MAX, and 0 or |a| >= AMOUNT_MIN.
 
     The limits keep squares and sums of squares far from overflow and underflow
-    (the lattice's window and step come from the variance).
+    (the lattice's window and step come from the variance). ``where`` and
+    ``groups``: see the comment above.
     """
-    bad = ~np.isfinite(amount)
-    if bad.any():
-        value = amount[np.flatnonzero(bad)[0]]
-        raise InputDataError(
-            f"{fn}: {what} {fmt(value)} is not a finite number "
-            "(filter it out or COALESCE it to a real amount)")
     size = np.abs(amount)
-    big = size > AMOUNT_MAX
-    if big.any():
-        raise InputDataError(
-            f"{fn}: {what} {fmt(amount[np.flatnonzero(big)[0]])} is beyond +/-{AMOUNT_MAX:.0e} "
-            "(a unit mix-up? give amounts in a larger unit, such as thousands)")
-    small = (size > 0) & (size < AMOUNT_MIN)
-    if small.any():
-        raise InputDataError(
-            f"{fn}: {what} {fmt(amount[np.flatnonzero(small)[0]])} is smaller than {AMOUNT_MIN:.0e} "
-            "but not 0 (round such residues to 0, or give amounts in a smaller unit)")
+    infinite = ~np.isfinite(amount)
+    problems = (
+        (infinite, "is not a finite number",
+         "filter it out or COALESCE it to a real amount" if np.count_nonzero(infinite) == 1
+         else "filter them out or COALESCE them to real amounts"),
+        (size > AMOUNT_MAX, f"is beyond +/-{AMOUNT_MAX:.0e}",
+         "a unit mix-up? give amounts in a larger unit, such as thousands"),
+        ((size > 0) & (size < AMOUNT_MIN), f"is smaller than {AMOUNT_MIN:.0e} but not 0",
+         "round such residues to 0, or give amounts in a smaller unit"),
+    )
+    for bad, problem, fix in problems:
+        if bad.any():
+            value = amount[np.flatnonzero(bad)[0]]
+            raise _row_error(fn, f"{what} {fmt(value)} {problem}", bad, fix, where, groups)
+
+
+def check_deals(fn: str, amount: np.ndarray, prob: np.ndarray, offsets: np.ndarray,
+                ids=None) -> None:
+    """Usable deals' amounts, then probabilities (``offsets`` delimit their groups); an
+    error names the row's deal id (if given) and its other field."""
+    groups = int(np.count_nonzero(np.diff(offsets)))
+    named = {} if ids is None else {"deal_id": ids}
+    check_amounts(fn, amount, where={**named, "probability": prob}, groups=groups)
+    check_probabilities(fn, prob, where={**named, "amount": amount}, groups=groups)
 
 
 def usable_rows(groups: Groups, *names: str):
@@ -129,8 +209,7 @@ def deals(fn: str, groups: Groups) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     (amount, prob), _, keep, offsets = usable_rows(groups, "amount", "prob")
     if not keep.all():
         amount, prob = amount[keep], prob[keep]
-    check_amounts(fn, amount)
-    check_probabilities(fn, prob)
+    check_deals(fn, amount, prob, offsets)
     return amount, prob, offsets
 
 
@@ -313,12 +392,16 @@ def check_outcomes(fn: str, b: OutcomeBatch) -> None:
         ((np.abs(b.origin) > OUTCOME_MAX) & v, f"origin {{}} is beyond +/-{OUTCOME_MAX:.0e}"),
         (~(np.abs(top) <= OUTCOME_MAX) & v, f"its largest total {{}} is beyond +/-{OUTCOME_MAX:.0e}"),
         ((b.step == 0) & (lengths > 1) & v, "step {} with more than one mass point"),
+        # outcome_dist's steps are >= 1e-9 / 4,194,304 bins; below OUTCOME_MIN_STEP ratios
+        # of steps overflow when outcomes are added
+        ((b.step > 0) & (b.step < OUTCOME_MIN_STEP) & v,
+         f"step {{}} is smaller than {OUTCOME_MIN_STEP:.0e}"),
         ((lengths == 0) & v, "mass is empty (length {})"),
         ((~np.isfinite(b.rounding) | (b.rounding < 0) | (b.rounding > OUTCOME_MAX)) & v,
          f"rounding {{}} is not in [0, {OUTCOME_MAX:.0e}]"),
         ((b.trials < 0) & v, "trials {} is negative"),
     ]
-    fields = [b.origin, b.step, b.origin, top, b.step, lengths, b.rounding, b.trials]
+    fields = [b.origin, b.step, b.origin, top, b.step, b.step, lengths, b.rounding, b.trials]
     for (bad, text), field in zip(problems, fields):
         if bad.any():
             value = field[np.flatnonzero(bad)[0]]

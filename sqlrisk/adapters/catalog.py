@@ -81,7 +81,10 @@ class SqlFunction:
         rows = [a for a in self.args if a.per_row and not a.carried]
         if len(rows) == 1:  # a list of the values themselves (outcome_merge's outcomes)
             return [f"{rows[0].sql_type}[]"] + [a.sql_type for a in self.args if not a.per_row]
-        struct = "STRUCT(" + ", ".join(f"{a.name} {a.sql_type}" for a in rows) + ")[]"
+        # A carried id rides along as text, so that an error can name the row it is on.
+        fields = [f"{a.name} {a.sql_type}" for a in rows]
+        fields += [f"{a.name} VARCHAR" for a in self.args if a.carried]
+        struct = "STRUCT(" + ", ".join(fields) + ")[]"
         return [struct] + [a.sql_type for a in self.args if not a.per_row]
 
     def macro_params(self) -> str:
@@ -107,11 +110,12 @@ class SqlFunction:
 
     def _carrying_body(self, carried: Arg, rows: list[Arg], others: list[str]) -> str:
         """The rows' list with the carried ids in it (written twice, computed once), the UDF
-        called on it without them, and each result's position ``i`` turned back into its id
+        called on it with the ids as text (for its error messages), and each result's position ``i`` turned back into its id
         (the result's other fields copied: ``deal_swing``'s, the one function that carries)."""
         full = ("list({" + f"'{carried.name}': {carried.name}, "
                 + ", ".join(f"'{a.name}': {a.name}::{a.sql_type}" for a in rows) + "})")
-        strip = "lambda x: {" + ", ".join(f"'{a.name}': x.{a.name}" for a in rows) + "}"
+        strip = ("lambda x: {" + ", ".join(f"'{a.name}': x.{a.name}" for a in rows)
+                 + f", '{carried.name}': x.{carried.name}::VARCHAR}}")
         call = f"{self.udf_name}(" + ", ".join([f"list_transform({full}, {strip})", *others]) + ")"
         back = ", ".join([f"'{carried.name}': {full}[s.i].{carried.name}"]
                          + [f"'{f}': s.{f}" for f in SWING_FIELDS if f != "i"])

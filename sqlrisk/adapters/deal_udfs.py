@@ -105,15 +105,23 @@ def total_quantiles(rows):
 
 # -- which deals move the odds ------------------------------------------------
 
+def _deal_ids(groups: arrow_io.Groups, usable: np.ndarray) -> pa.Array | None:
+    """The usable rows' deal ids, for naming a bad row, when the macro passes them along."""
+    if groups.fields.type.get_field_index("deal_id") < 0:
+        return None
+    ids = groups.field("deal_id")
+    return ids if usable.all() else ids.filter(pa.array(usable))
+
+
 def deal_swing(rows):
     """Per group: for each usable deal, its 1-based position in the group's list and
     the reach if won / if lost (the macro turns the position back into the deal id)."""
     fn = "deal_swing"
     groups = arrow_io.read_groups(rows)
     target, missing = arrow_io.per_group_scalar(fn, groups, "target", "target")
-    (amount, prob), _, usable, _ = arrow_io.usable_rows(groups, "amount", "prob")
-    arrow_io.check_amounts(fn, amount[usable])
-    arrow_io.check_probabilities(fn, prob[usable])
+    (amount, prob), _, usable, usable_offsets = arrow_io.usable_rows(groups, "amount", "prob")
+    arrow_io.check_deals(fn, amount[usable], prob[usable], usable_offsets,
+                         _deal_ids(groups, usable))
     parts, lengths, keep = [], np.zeros(len(groups), np.int64), np.zeros(len(groups), bool)
     for g in range(len(groups)):
         start, stop = groups.offsets[g], groups.offsets[g + 1]

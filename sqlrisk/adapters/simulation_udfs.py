@@ -29,8 +29,7 @@ def _sim_deals(fn: str, groups: arrow_io.Groups):
     low, low_null = arrow_io.floats(groups.field("low"))
     high, high_null = arrow_io.floats(groups.field("high"))
     amount, prob = amount[keep], prob[keep]
-    arrow_io.check_amounts(fn, amount)
-    arrow_io.check_probabilities(fn, prob)
+    arrow_io.check_deals(fn, amount, prob, offsets)
     # A NULL low or high means the deal's size does not vary on that side.
     low = np.where(low_null[keep], amount, low[keep])
     high = np.where(high_null[keep], amount, high[keep])
