@@ -9,6 +9,7 @@ like ``sql/reliability_table.sql`` as they are.
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import duckdb
@@ -20,6 +21,8 @@ from .errors import ParameterError
 
 HISTOGRAM_BINS = 60
 ROWS = "__sqlrisk_chart_rows"
+#: Columns that give a row's cuts when it has no ``cuts`` column and no --cuts is given.
+NAMED_CUTS = ("floor", "target", "stretch")
 
 
 def find_outcome_column(table: pa.Table) -> str | None:
@@ -70,8 +73,16 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
     label = label_column(table, column)
     con.register(ROWS, table)
     try:
-        has_cuts = "cuts" in table.column_names and cuts is None
-        cut_sql = "cuts::DOUBLE[]" if has_cuts else "?::DOUBLE[]"
+        has_cuts = cuts is None and "cuts" in table.column_names
+        named = [c for c in NAMED_CUTS if c in table.column_names]
+        if has_cuts:
+            cut_sql = "cuts::DOUBLE[]"
+        elif cuts is None and named:  # the columns floor, target, stretch (those present)
+            cut_sql = ("coalesce(list_filter([" + ", ".join(f"{_q(c)}::DOUBLE" for c in named)
+                       + "], lambda c: c IS NOT NULL), [])::DOUBLE[]")
+            has_cuts = True
+        else:
+            cut_sql = "?::DOUBLE[]"
         args = [] if has_cuts else [cuts or []]
         sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
                f"{cut_sql} AS cuts, o, outcome_histogram(o, {HISTOGRAM_BINS}) AS hist, "
@@ -84,7 +95,7 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
         con.unregister(ROWS)
     if not rows:
         raise ParameterError("chart: no row to draw" + (f" matches --where {where!r}" if where else ""))
-    written = []
+    written, taken = [], set()
     for i, (name, row_cuts, o, hist, bands, ci, mean) in enumerate(rows, start=1):
         spec = drawing.OutcomeChart(
             title=name or f"row {i}",
@@ -95,13 +106,27 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
             mean=mean,
             note=_note(o["rounding"], o["trials"]),
         )
-        written.append(_save(spec, _numbered(out, i, len(rows)), drawing.to_svg, drawing.to_png))
+        path = named_file(out, name, i, len(rows), taken)
+        written.append(_save(spec, path, drawing.to_svg, drawing.to_png))
     return written
 
 
-def _numbered(out: Path, i: int, count: int) -> Path:
-    """``out`` for a single chart; FILE-1.svg, FILE-2.svg, ... for several."""
-    return out if count == 1 else out.with_name(f"{out.stem}-{i}{out.suffix}")
+def slug(text: str) -> str:
+    """``text`` as a file-name part: letters, digits, ``_`` and ``-``; runs of others -> ``-``."""
+    return re.sub(r"[^A-Za-z0-9_]+", "-", text).strip("-").lower() or "row"
+
+
+def named_file(out: Path, label: str | None, i: int, count: int, taken: set) -> Path:
+    """``out`` for a single chart; for several, FILE-LABEL.svg after each row's label
+    (``owners-own_017.svg``; ``row-3`` without one), a repeated label numbered on."""
+    if count == 1:
+        return out
+    stem = f"{out.stem}-{slug(label) if label else f'row-{i}'}"
+    candidate, n = stem, 2
+    while candidate in taken:
+        candidate, n = f"{stem}-{n}", n + 1
+    taken.add(candidate)
+    return out.with_name(candidate + out.suffix)
 
 
 def _save(spec, path: Path, svg, png) -> Path:
@@ -159,7 +184,7 @@ def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
             raise ParameterError(f"chart: {name} {value!r} is outside [0, 1]; a reliability "
                                  "diagram plots probabilities (were percentages given?)")
     labels = list(dict.fromkeys(r[0] for r in rows))
-    written = []
+    written, taken = [], set()
     for i, name in enumerate(labels, start=1):
         mine = [r for r in rows if r[0] == name]
         deals = sum(r[3] for r in mine)
@@ -172,8 +197,8 @@ def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
                   + ("; whiskers: 95% Wilson intervals" if has_ci else "") + ".\n"
                   "Dashed line: observed = stated (a perfectly calibrated forecast)."),
         )
-        written.append(_save(spec, _numbered(out, i, len(labels)), drawing.reliability_svg,
-                             drawing.reliability_png))
+        path = named_file(out, name, i, len(labels), taken)
+        written.append(_save(spec, path, drawing.reliability_svg, drawing.reliability_png))
     return written
 
 

@@ -234,13 +234,14 @@ def chart(
     out: Path = typer.Option(..., "--output", "-o",
                              help="Picture to write: FILE.svg (no extra needed) or FILE.png "
                                   "(needs the sqlrisk[chart] extra). Several rows give "
-                                  "FILE-1.svg, FILE-2.svg, ..."),
+                                  "one file each, named after the row's label: "
+                                  "FILE-tidewater-bay.svg, ..."),
     where: Optional[str] = typer.Option(
         None, "--where", help="Keep only the result rows matching this SQL condition, "
                               "e.g. \"region = 'Tidewater Bay'\"."),
     cuts: Optional[str] = typer.Option(
         None, "--cuts", help="Band cuts to draw, comma separated (default: the result's "
-                             "'cuts' column, if it has one)."),
+                             "'cuts' column, else its floor, target and stretch columns)."),
     db: Optional[str] = typer.Option(None, "--db", help=DB_HELP),
     source: list[str] = typer.Option([], "--source", help=SOURCE_HELP),
     column: list[str] = typer.Option([], "--column", help=COLUMN_HELP),

@@ -176,3 +176,23 @@ def test_chart_png_and_one_file_per_row(demo_db, tmp_path):
 def test_chart_needs_an_outcome_column(demo_db, tmp_path):
     result = invoke("chart", "owner_quantiles", "--db", demo_db, "--output", str(tmp_path / "x.svg"))
     assert result.exit_code == 1 and "no outcome column" in result.output
+
+
+def test_chart_files_are_named_after_the_rows_label(demo_db, tmp_path):
+    result = invoke("chart", "region_outcomes", "--db", demo_db, "--output", str(tmp_path / "r.svg"))
+    assert result.exit_code == 0, result.output
+    regions = [r[0] for r in rows(demo_db, "SELECT DISTINCT region FROM owners ORDER BY 1")]
+    expected = {"r-" + "-".join(region.lower().split()) + ".svg" for region in regions}
+    assert {p.name for p in tmp_path.glob("r-*.svg")} == expected  # never r-1.svg, r-2.svg
+
+
+def test_chart_takes_cuts_from_floor_target_and_stretch_columns(tmp_path):
+    query = tmp_path / "q.sql"
+    query.write_text("-- Cuts as columns.\nSELECT 'x' AS who, 50.0 AS floor, NULL::DOUBLE AS target,"
+                     " 120.0 AS stretch, outcome_dist(t, 0.5) AS outcome FROM range(1, 20) r(t)\n")
+    result = invoke("chart", str(query), "--output", str(tmp_path / "q.svg"))
+    assert result.exit_code == 0, result.output
+    tree = ET.parse(tmp_path / "q.svg")
+    ns = {"s": "http://www.w3.org/2000/svg"}
+    assert len(tree.findall(".//s:line[@class='cut']", ns)) == 2  # floor and stretch; no target
+    assert len(tree.findall(".//s:text[@class='band']", ns)) == 3
