@@ -51,13 +51,19 @@ def label_column(table: pa.Table, skip: str) -> str | None:
     return None
 
 
-def _note(rounding: float, trials: int) -> str:
+def accuracy_text(error: float) -> str:
+    """An outcome's accuracy in probability, as a reader of odds reads it (from outcome_error)."""
+    if error == 0:
+        return "exact odds"
+    points = 100 * error
+    return f"odds within +/-{points:.2g} percentage points"
+
+
+def _note(error: float, trials: int) -> str:
     if trials > 0:
-        return (f"Monte Carlo, {trials:,} trials; band labels show 95% Wilson intervals; "
-                f"lattice rounding {rounding:,.0f}.")
-    if rounding > 0:
-        return f"Exact odds on a lattice; totals within {rounding:,.0f} of the lattice (worst case)."
-    return "Exact odds (to 1e-12)."
+        return (f"Monte Carlo, {trials:,} trials: {accuracy_text(error)} (95%); "
+                "band labels show 95% Wilson intervals.")
+    return accuracy_text(error).capitalize() + "."
 
 
 def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
@@ -87,7 +93,8 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
         sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
                f"{cut_sql} AS cuts, o, outcome_histogram(o, {HISTOGRAM_BINS}) AS hist, "
                f"outcome_bands(o, {cut_sql}) AS bands, "
-               f"outcome_bands_ci(o, {cut_sql}, 0.95) AS ci, outcome_mean(o) AS mean "
+               f"outcome_bands_ci(o, {cut_sql}, 0.95) AS ci, outcome_mean(o) AS mean, "
+               f"outcome_error(o) AS error "
                f"FROM (SELECT *, {_q(column)}::{OUTCOME_SQL} AS o FROM {ROWS}) AS r "
                f"WHERE o IS NOT NULL" + (f" AND ({where})" if where else ""))
         rows = con.execute(sql, args + args + args).fetchall()
@@ -96,7 +103,7 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
     if not rows:
         raise ParameterError("chart: no row to draw" + (f" matches --where {where!r}" if where else ""))
     written, taken = [], set()
-    for i, (name, row_cuts, o, hist, bands, ci, mean) in enumerate(rows, start=1):
+    for i, (name, row_cuts, o, hist, bands, ci, mean, error) in enumerate(rows, start=1):
         spec = drawing.OutcomeChart(
             title=name or f"row {i}",
             bins=[(b["lo"], b["hi"], b["prob"]) for b in hist],
@@ -104,7 +111,7 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
             bands=list(bands),
             band_ci=[(c["lo"], c["hi"]) for c in ci] if o["trials"] > 0 else None,
             mean=mean,
-            note=_note(o["rounding"], o["trials"]),
+            note=_note(error, o["trials"]),
         )
         path = named_file(out, name, i, len(rows), taken)
         written.append(_save(spec, path, drawing.to_svg, drawing.to_png))

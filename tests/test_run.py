@@ -15,6 +15,7 @@ import duckdb
 import pytest
 from typer.testing import CliRunner
 
+import sqlrisk
 from conftest import ROOT, assert_png
 from sqlrisk import queries
 from sqlrisk.cli import app
@@ -196,3 +197,31 @@ def test_chart_takes_cuts_from_floor_target_and_stretch_columns(tmp_path):
     ns = {"s": "http://www.w3.org/2000/svg"}
     assert len(tree.findall(".//s:line[@class='cut']", ns)) == 2  # floor and stretch; no target
     assert len(tree.findall(".//s:text[@class='band']", ns)) == 3
+
+
+def test_chart_states_accuracy_in_probability_not_currency(demo_db, tmp_path):
+    result = invoke("chart", "region_outcomes", "--db", demo_db, "--output", str(tmp_path / "r.svg"))
+    assert result.exit_code == 0, result.output
+    ns = {"s": "http://www.w3.org/2000/svg"}
+    con = duckdb.connect(demo_db, read_only=True)
+    sqlrisk.register(con)
+    try:  # rule (README "outcome_error"): the accuracy a reader of odds reads, in probability
+        errors = dict(con.execute(
+            "SELECT region, outcome_error(outcome_dist(amount, win_prob)) FROM pipeline "
+            "GROUP BY region").fetchall())
+    finally:
+        con.close()
+    for path in tmp_path.glob("r-*.svg"):
+        note = ET.parse(path).find(".//s:text[@class='note']", ns).text
+        region = ET.parse(path).find(".//s:text[@class='title']", ns).text
+        assert note == f"Odds within +/-{100 * errors[region]:.2g} percentage points.", note
+        assert "rounding" not in note and "within 0" not in note
+
+
+def test_chart_of_an_exact_outcome_says_exact(tmp_path):
+    query = tmp_path / "q.sql"
+    query.write_text("-- Exact.\nSELECT 'x' AS who, outcome_dist(t, 0.5) AS outcome "
+                     "FROM range(1, 20) r(t)\n")
+    assert invoke("chart", str(query), "--output", str(tmp_path / "q.svg")).exit_code == 0
+    ns = {"s": "http://www.w3.org/2000/svg"}
+    assert ET.parse(tmp_path / "q.svg").find(".//s:text[@class='note']", ns).text == "Exact odds."
