@@ -79,17 +79,15 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
     label = label_column(table, column)
     con.register(ROWS, table)
     try:
-        has_cuts = cuts is None and "cuts" in table.column_names
         named = [c for c in NAMED_CUTS if c in table.column_names]
-        if has_cuts:
+        args = []
+        if cuts is None and "cuts" in table.column_names:
             cut_sql = "cuts::DOUBLE[]"
         elif cuts is None and named:  # the columns floor, target, stretch (those present)
             cut_sql = ("coalesce(list_filter([" + ", ".join(f"{_q(c)}::DOUBLE" for c in named)
                        + "], lambda c: c IS NOT NULL), [])::DOUBLE[]")
-            has_cuts = True
         else:
-            cut_sql = "?::DOUBLE[]"
-        args = [] if has_cuts else [cuts or []]
+            cut_sql, args = "?::DOUBLE[]", [cuts or []]
         sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
                f"{cut_sql} AS cuts, o, outcome_histogram(o, {HISTOGRAM_BINS}) AS hist, "
                f"outcome_bands(o, {cut_sql}) AS bands, "
