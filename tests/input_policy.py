@@ -49,6 +49,16 @@ CASES = [
     Case("a group with no usable row",
          f"SELECT band_odds(amount, prob, [150.0]) FROM {deals(('NULL::DOUBLE', 0.5))}",
          "NULL"),
+    Case("the odds' error of a small group (answered from its scenarios: exact)",
+         f"SELECT odds_error(amount, prob) FROM {deals((100.0, 0.5), (250.0, 0.3))}",
+         "0.0"),
+    Case("the odds' error of a group with no usable row",
+         f"SELECT odds_error(amount, prob) FROM {deals(('NULL::DOUBLE', 0.5))}",
+         "NULL"),
+    Case("a bad probability given to odds_error (as to the odds themselves)",
+         f"SELECT odds_error(amount, prob) FROM {deals((100.0, 1.5), (200.0, 0.5))}",
+         "error: odds_error: probability 1.5 is outside [0, 1] (1 of 2 rows; a typo?) at the row "
+         "with amount 100.0"),
     Case("probabilities typed as percentages (every one in [0, 100], none between 0 and 1)",
          f"SELECT band_odds(amount, prob, [150.0]) FROM {deals((100.0, 40.0), (200.0, 50.0))}",
          "error: band_odds: probability 40.0 is outside [0, 1] (were percentages given? divide by "

@@ -123,6 +123,13 @@ def test_reach_odds(con, rows, target):
 
 
 @SETTINGS
+@given(rows=deal_rows)
+def test_odds_error(con, rows):
+    call(con, "odds_error", f"SELECT odds_error(amount, prob) FROM {DEALS}", columns(rows),
+         probability_or_null)
+
+
+@SETTINGS
 @given(rows=deal_rows, levels=value_list)
 def test_total_quantiles(con, rows, levels):
     call(con, "total_quantiles", f"SELECT total_quantiles(amount, prob, ?::DOUBLE[]) FROM {DEALS}",

@@ -152,6 +152,8 @@ FUNCTIONS: tuple[SqlFunction, ...] = (
                 "DOUBLE", deals.reach_odds, "P(total >= target)"),
     SqlFunction("total_quantiles", "aggregate", _deal_args(Arg("qs", "DOUBLE[]", per_row=True)),
                 "DOUBLE[]", deals.total_quantiles, "the total's quantiles at levels qs"),
+    SqlFunction("odds_error", "aggregate", _deal_args(), "DOUBLE", deals.odds_error,
+                "how far band_odds and reach_odds on these deals can be from the true odds"),
     SqlFunction("deal_swing", "aggregate",
                 (Arg("deal_id", "ANY", per_row=True, carried=True),
                  *_deal_args(Arg("target", "DOUBLE", per_row=True))),

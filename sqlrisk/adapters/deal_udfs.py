@@ -1,7 +1,7 @@
 """SQL adapters of the aggregates over a group's deals: Arrow in, kernel call, Arrow out.
 
-``outcome_dist``, ``band_odds``, ``reach_odds``, ``total_quantiles`` and
-``deal_swing`` arrive through TEMP macros (``catalog``) that pack a group's
+``outcome_dist``, ``band_odds``, ``reach_odds``, ``total_quantiles``, ``odds_error``
+and ``deal_swing`` arrive through TEMP macros (``catalog``) that pack a group's
 rows into one ``LIST(STRUCT(...))``, so one UDF call covers up to 2,048 groups
 and one kernel call. The answers are read by ``readers``.
 """
@@ -12,9 +12,9 @@ import numpy as np
 import pyarrow as pa
 
 from ..errors import ParameterError
-from ..kernels import heavy, scenarios
+from ..kernels import accuracy, heavy, scenarios
 from ..kernels.copula import correlated_outcomes
-from ..kernels.lattice import MAX_BINS
+from ..kernels.lattice import DEFAULT_BINS, MAX_BINS
 from ..kernels.outcome import SCENARIOS, TOO_MANY_BINS, OutcomeBatch, exact_outcomes
 from ..kernels.swing import swings
 from . import arrow_io, readers
@@ -101,6 +101,26 @@ def total_quantiles(rows):
     arrow_io.check_levels(fn, qs)
     b, small = _group_answers(fn, groups)
     return readers.read_quantiles(b, qs, q_offsets, (b.valid | small.mask) & ~missing, small)
+
+
+def odds_error(rows):
+    """How far ``band_odds`` / ``reach_odds`` on the same deals can be from the true odds,
+    for what they read: 0 for the groups answered from their scenarios and for exact
+    lattices; for a lumpy group (heavy scenarios read exactly, ``kernels/heavy.py``) the
+    estimate of its light part's reading; otherwise the ``outcome_error`` of the lattice
+    read (the outcome ``outcome_dist`` stores for these deals)."""
+    fn = "odds_error"
+    groups = arrow_io.read_groups(rows)
+    b, small = _group_answers(fn, groups)
+    out = np.zeros(len(b))
+    sub = readers.subset_batch(b, b.valid)
+    out[b.valid] = accuracy.error_batch(sub.origin, sub.step, sub.mass, sub.offsets,
+                                        sub.rounding, sub.trials)
+    lumpy = np.flatnonzero(b.valid & small.lumpy & (np.diff(b.offsets) >= 3))
+    if len(lumpy):
+        out[lumpy] = heavy.error_heavy(small.amount, small.prob, small.offsets, lumpy, b.step,
+                                       b.mass, b.offsets, b.rounding, DEFAULT_BINS)
+    return arrow_io.doubles_to_arrow(out, b.valid | small.mask)
 
 
 # -- which deals move the odds ------------------------------------------------

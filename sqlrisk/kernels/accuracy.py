@@ -68,24 +68,39 @@ def wilson_half_width(trials):
 
 
 @njit(cache=True, nogil=True)
-def _lattice_error(origin, step, mass, rounding):
+def lattice_noise(step, mass, rounding):
+    """Bound on the variance, in squared steps, of a bins outcome's own noise (the split
+    count ``rounding`` implies, or SPLIT_SHARE of the outcome's variance, plus the
+    uniform spread of the bin reading)."""
     m = len(mass)
-    if m < 3:
-        return 0.0
     mean = 0.0
     for i in range(m):
         mean += i * mass[i]
     var = 0.0
     for i in range(m):
         var += (i - mean) ** 2 * mass[i]
-    noise = min(rounding / (2.0 * step), SPLIT_SHARE * var) + 1.0 / 12.0
+    return min(rounding / (2.0 * step), SPLIT_SHARE * var) + 1.0 / 12.0
+
+
+@njit(cache=True, nogil=True)
+def blur_error(mass, noise):
+    """Largest error of a CDF read off ``mass`` (a whole outcome, or a part of one such as
+    the light scenarios of ``heavy``) through a mean-zero noise of variance ``noise``:
+    the slope term and the blurred-lump term of the module notes, with their margins."""
     high = 0.0
     low = 0.0
-    for i in range(1, m - 1):
+    for i in range(1, len(mass) - 1):
         e = 0.25 * noise * (mass[i + 1] - mass[i - 1])
         high = max(high, e)
         low = min(low, e)
     return min(max(SLOPE_MARGIN * (high - low), LUMP_MARGIN * _lump(mass, noise)), 1.0)
+
+
+@njit(cache=True, nogil=True)
+def _lattice_error(origin, step, mass, rounding):
+    if len(mass) < 3:
+        return 0.0
+    return blur_error(mass, lattice_noise(step, mass, rounding))
 
 
 @njit(cache=True, nogil=True)

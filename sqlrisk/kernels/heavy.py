@@ -27,6 +27,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from .accuracy import blur_error, lattice_noise
 from .lattice import OK, plan_group
 from .order import activate
 from .readout import prob_below, write_bands
@@ -129,6 +130,25 @@ def split_heavy(a, k, f, p, light, first):
 
 
 @njit(cache=True, nogil=True)
+def _light_part(amount, prob, lo, hi, light, bins):
+    """The deals ``amount[lo:hi]``'s heavy scenarios taken out of ``light`` (a copy of
+    their lattice's mass, changed in place) when their lattice is the one ``plan_group``
+    plans; returns the heavy totals (sorted), their cumulative mass and the certain shift
+    (none when the lattice is another one: ``light`` is then left whole)."""
+    a = np.empty(hi - lo)
+    p = np.empty(hi - lo)
+    m, certain, flipped = activate(amount[lo:hi], prob[lo:hi], True, a, p)
+    a, p = a[:m], p[:m]
+    k = np.zeros(m, np.int64)
+    f = np.zeros(m)
+    st, h, _ex, first, size, linear, _rnd = plan_group(a, p, 0.0, bins, k, f)
+    if st == OK and linear and size == len(light):
+        totals, cum = split_heavy(a, k, f, p, light, first)
+        return totals, cum, certain + flipped
+    return np.zeros(0), np.zeros(1), certain + flipped
+
+
+@njit(cache=True, nogil=True)
 def bands_heavy(amount, prob, offsets, groups, origin, step, mass, mass_offsets, rounding,
                 cuts, cut_offsets, bins):
     """Band probabilities of the lumpy groups ``groups`` (rows of a lattice batch whose
@@ -136,20 +156,9 @@ def bands_heavy(amount, prob, offsets, groups, origin, step, mass, mass_offsets,
     out = np.empty(len(cuts) + len(groups))
     pos = 0
     for n, g in enumerate(groups):
-        a0, a1 = offsets[g], offsets[g + 1]
-        a = np.empty(a1 - a0)
-        p = np.empty(a1 - a0)
-        m, certain, flipped = activate(amount[a0:a1], prob[a0:a1], True, a, p)
-        shift = certain + flipped
-        a, p = a[:m], p[:m]
-        k = np.zeros(m, np.int64)
-        f = np.zeros(m)
-        st, h, _ex, first, size, linear, _rnd = plan_group(a, p, 0.0, bins, k, f)
         light = mass[mass_offsets[g]:mass_offsets[g + 1]].copy()
-        heavy_totals = np.zeros(0)
-        heavy_cum = np.zeros(1)
-        if st == OK and linear and size == len(light):
-            heavy_totals, heavy_cum = split_heavy(a, k, f, p, light, first)
+        heavy_totals, heavy_cum, shift = _light_part(amount, prob, offsets[g], offsets[g + 1],
+                                                     light, bins)
         cum = np.cumsum(light)
         top = origin[g] + (len(cum) - 1) * step[g]
         below = np.empty(cut_offsets[n + 1] - cut_offsets[n])
@@ -159,4 +168,26 @@ def bands_heavy(amount, prob, offsets, groups, origin, step, mass, mass_offsets,
             below[c] = heavy_cum[np.searchsorted(heavy_totals, edge)]
             below[c] += prob_below(origin[g], step[g], cum, rounding[g], x)
         pos = write_bands(below, 1.0, out, pos)
+    return out
+
+
+@njit(cache=True, nogil=True)
+def error_heavy(amount, prob, offsets, groups, step, mass, mass_offsets, rounding, bins):
+    """How far ``bands_heavy``'s probabilities of the lumpy groups ``groups`` can be from the
+    true ones (``odds_error``).
+
+    The heavy scenarios are read exactly, so only the light part's reading errs: the
+    lattice image of every light scenario is the scenario's total plus the same mean-zero
+    split noise as the whole outcome's, so ``accuracy.blur_error`` bounds it as it bounds a
+    whole outcome, on the light mass (its slope, and the blurred lumps it still holds:
+    light scenarios each below HEAVY_MASS, but many may sit together) with the whole
+    outcome's noise bound. Without the heavy totals this is the whole outcome's
+    ``outcome_error``, which counts each heavy total as blurred: the light estimate is
+    smaller by about their mass, never by more than the heavy reading gains."""
+    out = np.empty(len(groups))
+    for n, g in enumerate(groups):
+        whole = mass[mass_offsets[g]:mass_offsets[g + 1]]
+        light = whole.copy()
+        _light_part(amount, prob, offsets[g], offsets[g + 1], light, bins)
+        out[n] = blur_error(light, lattice_noise(step[g], whole, rounding[g]))
     return out
