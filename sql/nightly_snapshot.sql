@@ -6,6 +6,7 @@
 -- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
 -- bands holds one probability per band of the owner's cuts (those of floor, target and
 -- stretch that are present, in that order); an owner without a quota row gets bands [1.0].
+-- odds_error is the bands' accuracy in probability (0 when exact).
 -- Typical use:
 --   sqlrisk run nightly_snapshot --db forecast.duckdb -p as_of=2026-11-30 --into band_history --replace-rows as_of=2026-11-30
 WITH quota AS (
@@ -19,6 +20,7 @@ odds AS (
            count(*) FILTER (WHERE p.amount IS NOT NULL AND p.win_prob IS NOT NULL) AS deals,
            sum(p.amount * p.win_prob) AS expected_value,
            band_odds(p.amount, p.win_prob, coalesce(q.cuts, [])) AS bands,
+           odds_error(p.amount, p.win_prob) AS odds_error,
            outcome_dist(p.amount, p.win_prob) AS outcome
     FROM pipeline AS p
     LEFT JOIN quota AS q USING (owner_id)
@@ -31,6 +33,7 @@ SELECT $as_of::DATE AS as_of,
        o.expected_value,
        q.floor, q.target, q.stretch,
        o.bands,
+       o.odds_error,
        o.outcome
 FROM odds AS o
 LEFT JOIN quota AS q USING (owner_id)

@@ -5,7 +5,8 @@
 -- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
 -- Bands come from whichever of floor, target and stretch an owner has: a band whose cut is
 -- missing is NULL, and reach_target is the chance of reaching target. An owner with deals but
--- no quota row is listed with NULL cuts.
+-- no quota row is listed with NULL cuts. odds_error is the band odds' accuracy in probability
+-- (0: exact; 0.0007: within +/-0.07 percentage points).
 WITH quota AS (
     SELECT owner_id, floor, target, stretch,
            list_filter([floor, target, stretch], lambda c: c IS NOT NULL)::DOUBLE[] AS cuts
@@ -17,7 +18,7 @@ odds AS (
            count(*) FILTER (WHERE p.amount IS NOT NULL AND p.win_prob IS NOT NULL) AS deals,
            sum(p.amount * p.win_prob) AS expected_value,
            band_odds(p.amount, p.win_prob, coalesce(q.cuts, [])) AS bands,
-           outcome_dist(p.amount, p.win_prob).rounding AS rounding
+           odds_error(p.amount, p.win_prob) AS odds_error
     FROM pipeline AS p
     LEFT JOIN quota AS q USING (owner_id)
     GROUP BY p.owner_id
@@ -31,7 +32,7 @@ SELECT o.owner_id, w.owner_name, w.region, o.deals,
        CASE WHEN q.stretch IS NOT NULL THEN o.bands[-1] END AS stretch_or_more,
        CASE WHEN q.target IS NOT NULL
             THEN list_sum(o.bands[list_position(q.cuts, q.target) + 1:]) END AS reach_target,
-       round(o.rounding) AS rounding
+       o.odds_error
 FROM odds AS o
 LEFT JOIN quota AS q USING (owner_id)
 LEFT JOIN (SELECT owner_id, any_value(owner_name) AS owner_name, any_value(region) AS region FROM owners GROUP BY owner_id) AS w USING (owner_id)

@@ -20,6 +20,6 @@ SELECT region, owners,
        round(outcome_quantiles(outcome, [0.1, 0.5, 0.9])[1]) AS p10,
        round(outcome_quantiles(outcome, [0.1, 0.5, 0.9])[2]) AS p50,
        round(outcome_quantiles(outcome, [0.1, 0.5, 0.9])[3]) AS p90,
-       round(outcome.rounding) AS rounding
+       outcome_error(outcome) AS odds_error
 FROM rolled
 ORDER BY region = '(company)', region = '(no region)', region;

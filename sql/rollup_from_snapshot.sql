@@ -22,6 +22,6 @@ SELECT region, owners,
        outcome_bands(outcome, coalesce(list_filter([floor, target, stretch],
                                                    lambda c: c IS NOT NULL), [])::DOUBLE[]) AS bands,
        outcome_quantiles(outcome, [0.1, 0.5, 0.9]) AS p10_p50_p90,
-       round(outcome.rounding) AS rounding
+       outcome_error(outcome) AS odds_error
 FROM rolled
 ORDER BY region = '(company)', region = '(no region)', region;

@@ -128,6 +128,20 @@ def _check_replace_key(con, query: queries.SavedQuery, key: tuple[str, str]) -> 
             f"query writes, e.g. the one given to -p {name})")
 
 
+def _check_columns(con, query: queries.SavedQuery, into: str, target: str) -> None:
+    """A table written by an older version may lack a column the query now returns
+    (band_history before odds_error): say which, and how to add it."""
+    have = {d[0].lower() for d in con.execute(f"SELECT * FROM {target} LIMIT 0").description}
+    missing = [(r[0], r[1]) for r in con.execute(f"DESCRIBE SELECT * FROM {RESULT}").fetchall()
+               if r[0].lower() not in have]
+    if missing:
+        name, typ = missing[0]
+        raise InputDataError(
+            f"run: {into} has no column {name}, which {query.name} now returns (a table written "
+            f"by an earlier version); add it with ALTER TABLE {into} ADD COLUMN {name} {typ}, "
+            "then run again")
+
+
 def run_query(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery, params: dict[str, str],
               into: str | None = None, replace_rows: tuple[str, str] | None = None,
               allow_empty: bool = False) -> RunResult:
@@ -159,6 +173,7 @@ def run_query(con: duckdb.DuckDBPyConnection, query: queries.SavedQuery, params:
         if replace_rows is not None:
             column = quote_ident(replace_rows[0], "column")
             con.execute(f"DELETE FROM {target} WHERE {column} = ?", [replace_rows[1]])
+        _check_columns(con, query, into, target)
         con.execute(f"INSERT INTO {target} BY NAME SELECT * FROM {RESULT}")
         written = con.execute(f"SELECT count(*) FROM {RESULT}").fetchall()[0][0]
         table = con.sql(f"SELECT * FROM {RESULT}").to_arrow_table()

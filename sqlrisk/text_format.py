@@ -39,6 +39,14 @@ def pct_list(x) -> str:
     return "" if x is None else "[" + ", ".join(pct(v) for v in x) + "]"
 
 
+def accuracy(x) -> str:
+    """An accuracy in probability (odds_error, outcome_error) as a reader of odds reads it:
+    ``exact``, or ``+/-0.07 pts`` (percentage points, two significant digits)."""
+    if x is None:
+        return ""
+    return "exact" if x == 0 else f"+/-{100 * x:.2g} pts"
+
+
 def outcome_label(o) -> str:
     if o is None:
         return ""
@@ -62,6 +70,8 @@ def result_table(table: pa.Table) -> str:
         values = [r[field.name] for r in rows]
         if pa.types.is_struct(field.type) and {f.name for f in field.type} >= {"mass", "trials"}:
             formats[field.name] = outcome_label
+        elif field.name.endswith("_error") and pa.types.is_floating(field.type):
+            formats[field.name] = accuracy
         elif _is_probability(field.name, values):
             formats[field.name] = pct_list if pa.types.is_list(field.type) else pct
     names = table.column_names

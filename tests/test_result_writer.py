@@ -90,3 +90,28 @@ def test_run_csv_of_a_bands_query_has_one_column_per_band(tmp_path):
     header, rows = parse(out.stdout)
     assert header == ["owner_id", "bands_1", "bands_2", "bands_3"] and len(rows) == 54
     assert all(abs(sum(float(x) for x in r[1:]) - 1.0) < 1e-12 for r in rows)
+
+
+def test_accuracy_columns_show_as_exact_or_percentage_points_and_csv_keeps_the_number():
+    table = pa.table({"owner_id": ["a", "b", "c"], "odds_error": [0.0, 0.0007, 0.001234],
+                      "bands": [[0.25, 0.75]] * 3})
+    shown = text_format.result_table(table).splitlines()
+    # rule (issue 14): accuracy in probability, "exact" or within +/- percentage points
+    assert shown[2].split()[1] == "exact"
+    assert "+/-0.07 pts" in shown[3] and "+/-0.12 pts" in shown[4]
+    assert "[25.0%, 75.0%]" in shown[2]
+    header, rows = parse(result_writer.to_csv(table))
+    assert [r[header.index("odds_error")] for r in rows] == ["0.0", "0.0007", "0.001234"]
+    assert json.loads(result_writer.to_text(table, "json").splitlines()[2])["odds_error"] == 0.001234
+
+
+def test_run_shows_odds_error_as_the_demo_does():
+    result = invoke("run", "owner_band_odds", "--source",
+                    f"pipeline={ROOT / 'seeds' / 'pipeline.csv'}", "--source",
+                    f"quota_bands={ROOT / 'seeds' / 'quota_bands.csv'}", "--source",
+                    f"owners={ROOT / 'seeds' / 'owners.csv'}")
+    assert result.exit_code == 0, result.output
+    header = result.output.splitlines()[0].split()
+    assert header[-1] == "odds_error" and "rounding" not in header
+    lines = [line for line in result.output.splitlines()[2:] if line.strip()]
+    assert lines and all(line.endswith(("exact", " pts")) for line in lines)

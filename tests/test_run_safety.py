@@ -10,6 +10,7 @@ never pasted into the SQL).
 from __future__ import annotations
 
 import ctypes
+from datetime import date
 import hashlib
 import os
 import subprocess
@@ -383,3 +384,50 @@ def test_parameter_that_is_not_valid_unicode_is_a_clean_error(echo_db):
     # rule (CONVENTIONS.md "Errors"): one line, exit 1, and the database is left as it was
     assert_cli_one_line_error(result, "surrogate")
     assert table_names(db) == ["sentinel"]
+
+
+def _old_band_history(tmp_path) -> str:
+    """A forecast database whose band_history was written before odds_error existed."""
+    db = str(tmp_path / "forecast.duckdb")
+    con = duckdb.connect(db)
+    for name in ("pipeline", "owners", "quota_bands"):
+        con.execute(f"CREATE TABLE {name} AS SELECT * FROM read_csv(?)",
+                    [str(Path(__file__).resolve().parent.parent / "seeds" / f"{name}.csv")])
+    con.close()
+    first = invoke("run", "nightly_snapshot", "--db", db, "-p", "as_of=2026-11-30",
+                   "--into", "band_history")
+    assert first.exit_code == 0, first.output
+    con = duckdb.connect(db)
+    con.execute("ALTER TABLE band_history DROP COLUMN odds_error")
+    con.close()
+    return db
+
+
+def test_appending_to_a_band_history_without_odds_error_names_the_column_and_the_fix(tmp_path):
+    db = _old_band_history(tmp_path)
+    before = rows(db, "SELECT * EXCLUDE (outcome) FROM band_history ORDER BY ALL")
+    result = invoke("run", "nightly_snapshot", "--db", db, "-p", "as_of=2026-12-01",
+                    "--into", "band_history")
+    # rule (CONVENTIONS.md "Errors"): one line naming the table, the column and the fix
+    assert result.exit_code == 1
+    message = result.output.strip()
+    assert "\n" not in message and "band_history" in message and "odds_error" in message
+    assert "ALTER TABLE band_history ADD COLUMN odds_error DOUBLE" in message
+    assert rows(db, "SELECT * EXCLUDE (outcome) FROM band_history ORDER BY ALL") == before
+    con = duckdb.connect(db)
+    con.execute("ALTER TABLE band_history ADD COLUMN odds_error DOUBLE")
+    con.close()
+    fixed = invoke("run", "nightly_snapshot", "--db", db, "-p", "as_of=2026-12-01",
+                   "--into", "band_history")
+    assert fixed.exit_code == 0, fixed.output
+    assert rows(db, "SELECT as_of, count(odds_error) FROM band_history GROUP BY ALL "
+                    "ORDER BY ALL") == [(date(2026, 11, 30), 0), (date(2026, 12, 1), 54)]
+
+
+def test_rollup_from_snapshot_reads_a_band_history_without_odds_error(tmp_path):
+    db = _old_band_history(tmp_path)
+    result = invoke("run", "rollup_from_snapshot", "--db", db, "-p", "as_of=2026-11-30",
+                    "--format", "csv")
+    assert result.exit_code == 0, result.output
+    header = result.output.splitlines()[0].split(",")
+    assert header[-1] == "odds_error"  # outcome_error of each merged stored outcome
