@@ -1,22 +1,24 @@
 """Generate the sqlrisk demo data set.
 
-Writes four CSV files beside this script for Brindlewick Software, a
+Writes five CSV files beside this script for Brindlewick Software, a
 made-up B2B software company:
 
 * owners.csv         - sellers, with their team and region
 * pipeline.csv       - open deals expected to close in 2027-Q1
 * quota_bands.csv    - floor / target / stretch cut points per seller
 * closed_deals.csv   - closed deals from 2026, used for calibration
+* pipeline_weeks.csv - the open pipeline on six Mondays up to today (2026-11-30)
 
 The company, regions, teams, product lines and every person's name are
 invented. Any resemblance to real companies or people is a coincidence.
-The random seed is fixed, so every run writes exactly the same files.
+The random seeds are fixed, so every run writes exactly the same files.
 
 Run from the repository root:  python seeds/generate.py
 """
 
 import csv
 import datetime as dt
+import io
 from pathlib import Path
 
 import numpy as np
@@ -57,11 +59,18 @@ Q1_START, Q1_DAYS = dt.date(2027, 1, 1), 90      # 2027-01-01 .. 2027-03-31
 HIST_START, HIST_DAYS = dt.date(2026, 1, 1), 365  # 2026-01-01 .. 2026-12-31
 
 
+def csv_text(header, rows):
+    """A seed file's text, exactly as ``write_csv`` writes it (CRLF line ends)."""
+    buffer = io.StringIO(newline="")
+    writer = csv.writer(buffer)
+    writer.writerow(header)
+    writer.writerows(rows)
+    return buffer.getvalue()
+
+
 def write_csv(name, header, rows):
     with open(OUT_DIR / name, "w", newline="") as f:
-        writer = csv.writer(f)
-        writer.writerow(header)
-        writer.writerows(rows)
+        f.write(csv_text(header, rows))
     print(f"wrote {name}: {len(rows)} rows")
 
 
@@ -169,21 +178,115 @@ def make_closed_deals(rng, owners):
     return rows
 
 
-def main():
+#: The weekly history draws from its own random stream, so the other seed files stay the same.
+WEEKS_SEED = 20261026
+WEEK_DATES = [dt.date(2026, 10, 26) + dt.timedelta(weeks=k) for k in range(6)]  # Mondays
+STAGE_NAMES = list(STAGES)
+#: Deals that were open in an earlier week and are gone today get ids from here on
+#: (today's pipeline uses dl_00001 .. dl_02189).
+GONE_FIRST_ID = 90_001
+#: How each kind of owner's pipeline moved in one week, read backwards: the chance that one
+#: of today's deals was created during the week, that it sat one stage lower at the start of
+#: it, that its amount was different; and the mean number of deals open at the start of the
+#: week that were lost or pushed out of the quarter during it.
+WEEK_MOVES = {
+    "improving": {"created": 0.04, "advanced": 0.15, "resized": 0.06, "gone": 0.3},
+    "steady":    {"created": 0.02, "advanced": 0.04, "resized": 0.06, "gone": 0.9},
+    "declining": {"created": 0.01, "advanced": 0.02, "resized": 0.06, "gone": 2.0},
+}
+TRENDING_OWNERS = 8  # owners improving, and as many declining; the others are steady
+
+
+def owner_trends(rng, owners):
+    """Which owners' odds rose over the weeks, fell, or stayed about level."""
+    order = rng.permutation(len(owners))
+    trend = {}
+    for rank, i in enumerate(order):
+        trend[owners[i]["owner_id"]] = ("improving" if rank < TRENDING_OWNERS else
+                                        "declining" if rank < 2 * TRENDING_OWNERS else "steady")
+    return trend
+
+
+def week_before(rng, deals, owners, trend, next_id):
+    """The open deals a week before ``deals``, and the next free id for a gone deal."""
+    earlier = []
+    for deal in deals:
+        moves = WEEK_MOVES[trend[deal[1]]]
+        if rng.random() < moves["created"]:
+            continue
+        deal = list(deal)
+        k = STAGE_NAMES.index(deal[3])
+        if k > 0 and rng.random() < moves["advanced"]:
+            # one stage back, the seller's probability lower by the gap of the stage means
+            gap = STAGES[STAGE_NAMES[k]] - STAGES[STAGE_NAMES[k - 1]]
+            deal[3] = STAGE_NAMES[k - 1]
+            deal[5] = float(np.round(np.clip(deal[5] - gap, 0.02, 0.97), 2))
+        if rng.random() < moves["resized"]:
+            deal[4] = round_to(deal[4] * rng.uniform(0.8, 1.25), 100)
+        earlier.append(deal)
+    for o in owners:
+        n = int(rng.poisson(WEEK_MOVES[trend[o["owner_id"]]]["gone"]))
+        if not n:
+            continue
+        stages, probs = draw_stage_and_prob(rng, o, n)
+        amounts = draw_amounts(rng, n, allow_negative=False)
+        closes = random_dates(rng, Q1_START, Q1_DAYS, n)
+        products = rng.choice(PRODUCT_LINES, size=n, p=PRODUCT_WEIGHTS)
+        for s, p, a, c, pl in zip(stages, probs, amounts, closes, products):
+            earlier.append([f"dl_{next_id:05d}", o["owner_id"], o["region"], s, a, float(p),
+                            c, str(pl)])
+            next_id += 1
+    earlier.sort(key=lambda deal: deal[0])
+    return earlier, next_id
+
+
+def make_pipeline_weeks(pipeline, owners):
+    """The open pipeline on each of the six Mondays of ``WEEK_DATES``, as_of first.
+
+    The last Monday's rows are ``pipeline`` itself, row for row. Walking back a week at a
+    time (``week_before``): some of today's deals were not created yet, some sat a stage
+    lower or at another amount, and deals lost or pushed out of the quarter since were
+    still open (drawn like the pipeline's own deals). Improving owners advanced many deals
+    and lost few, so their odds rose over the weeks; declining owners lost many.
+    """
+    rng = np.random.default_rng(WEEKS_SEED)
+    trend = owner_trends(rng, owners)
+    weeks = [[list(deal) for deal in pipeline]]
+    next_id = GONE_FIRST_ID
+    for _ in WEEK_DATES[:-1]:
+        earlier, next_id = week_before(rng, weeks[0], owners, trend, next_id)
+        weeks.insert(0, earlier)
+    return [[day.isoformat(), *deal] for day, deals in zip(WEEK_DATES, weeks) for deal in deals]
+
+
+PIPELINE_COLUMNS = ["deal_id", "owner_id", "region", "stage", "amount", "win_prob",
+                    "expected_close", "product_line"]
+
+
+def make_seed_files():
+    """Every seed file's header and rows, by file name (what ``main`` writes)."""
     rng = np.random.default_rng(SEED)
     owners = make_owners(rng)
     owner_traits(rng, owners)
     pipeline = make_pipeline(rng, owners)
     bands = make_quota_bands(rng, owners, pipeline)
     closed = make_closed_deals(rng, owners)
+    return {
+        "owners.csv": (["owner_id", "owner_name", "team", "region"],
+                       [[o["owner_id"], o["owner_name"], o["team"], o["region"]] for o in owners]),
+        "pipeline.csv": (PIPELINE_COLUMNS, pipeline),
+        "quota_bands.csv": (["owner_id", "period", "floor", "target", "stretch"], bands),
+        "closed_deals.csv": (["deal_id", "owner_id", "stage_at_snapshot", "stated_prob",
+                              "won", "amount", "closed_on"], closed),
+        # after the files above: its stream is its own, and it copies today's pipeline
+        "pipeline_weeks.csv": (["as_of", *PIPELINE_COLUMNS],
+                               make_pipeline_weeks(pipeline, owners)),
+    }
 
-    write_csv("owners.csv", ["owner_id", "owner_name", "team", "region"],
-              [[o["owner_id"], o["owner_name"], o["team"], o["region"]] for o in owners])
-    write_csv("pipeline.csv", ["deal_id", "owner_id", "region", "stage", "amount",
-                               "win_prob", "expected_close", "product_line"], pipeline)
-    write_csv("quota_bands.csv", ["owner_id", "period", "floor", "target", "stretch"], bands)
-    write_csv("closed_deals.csv", ["deal_id", "owner_id", "stage_at_snapshot", "stated_prob",
-                                   "won", "amount", "closed_on"], closed)
+
+def main():
+    for name, (header, rows) in make_seed_files().items():
+        write_csv(name, header, rows)
 
 
 if __name__ == "__main__":
