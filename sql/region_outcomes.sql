@@ -15,6 +15,7 @@ WITH bands AS (
     GROUP BY w.region
 )
 SELECT p.region,
+       any_value(b.floor) AS floor, any_value(b.target) AS target, any_value(b.stretch) AS stretch,
        any_value(coalesce(list_filter([b.floor, b.target, b.stretch], lambda c: c IS NOT NULL),
                           []))::DOUBLE[] AS cuts,
        outcome_dist(p.amount, p.win_prob) AS outcome

@@ -1,273 +1,303 @@
-"""Pictures of an outcome: the distribution of the total with the band cuts on it;
-and reliability diagrams of stated win probabilities against observed win rates.
+"""The outcome chart: the chance of reaching at least each total, P(total >= x), as a curve.
 
-A chart is described once (``OutcomeChart``, ``ReliabilityChart``) and drawn as
-SVG (written here, no dependency) or PNG (with matplotlib, the optional
-``sqlrisk[chart]`` extra). On an outcome chart each cut is a vertical line,
-each band's probability is written on its band, the expected value is marked,
-and the axis is in currency units. On a reliability diagram each bin is a
-circle (area in proportion to its deals, the count written beside it) at its
-mean stated probability and observed win rate, with its interval as a whisker
-where the query gives one; the dashed diagonal is a perfectly calibrated seller.
+Read from the left: at the lowest totals the curve is at 100% (the group reaches them for
+sure) and it falls to 0% past the best case. Each cut (floor, target, stretch, or the names
+given) is a point on the curve labelled with its name, its value and its reach odds; the
+area under the curve is shaded band by band (``chart_style``'s palette), and a panel beside
+the plot lists each band's probability and the key totals. Under the total axis a bar runs
+from P10 to P90 with a tick at P50 and a diamond at the expected value. Simulated outcomes
+carry their 95% Wilson band as a thin envelope around the curve. One line at the foot says
+how exact the odds are (``outcome_error``).
+
+``outcome_figure`` draws one chart, ``outcome_grid`` one panel per chart on a page (small
+multiples). Both return the figure and every text box they placed (``Drawn``), so tests can
+check that no label overlaps another or the curve.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from xml.sax.saxutils import escape
 
-from .errors import SqlriskError
-from .text_format import pct
+import numpy as np
 
-BAR = "#6c8ebf"
-CUT = "#2b2b2b"
-MEAN = "#c0632d"
-TEXT = "#222222"
-GRID = "#dddddd"
+from .chart_layout import Box, place_one, text_size
+from .chart_style import (DPI, INK, QUIET, band_colours, compact_money, fig_px, money_ticks,
+                          percent_ticks, pyplot, quiet_frame)
+from .text_format import money, pct
+
+
+@dataclass
+class CutMark:
+    name: str
+    value: float
+    reach: float  # P(total >= value)
+
+
+@dataclass
+class Band:
+    name: str
+    prob: float
+    ci: tuple[float, float] | None = None  # 95% Wilson interval of a simulated band
 
 
 @dataclass
 class OutcomeChart:
     title: str
-    bins: list[tuple[float, float, float]]  # (lo, hi, prob)
-    cuts: list[float] = field(default_factory=list)
-    bands: list[float] = field(default_factory=list)
-    band_ci: list[tuple[float, float]] | None = None
-    mean: float = 0.0
-    note: str = ""
-
-
-def compact_money(x: float) -> str:
-    """1234567 -> '1.23M', 45000 -> '45k' (axis labels)."""
-    sign = "-" if x < 0 else ""
-    x = abs(x)
-    for unit, size in (("B", 1e9), ("M", 1e6), ("k", 1e3)):
-        if x >= size:
-            return f"{sign}{x / size:.4g}{unit}"
-    return f"{sign}{x:.4g}"
-
-
-def nice_ticks(lo: float, hi: float, count: int = 8) -> list[float]:
-    """Round tick positions covering [lo, hi] (steps of 1, 2 or 5 x 10^k)."""
-    if hi <= lo:
-        return [lo]
-    raw = (hi - lo) / count
-    power = 10 ** math.floor(math.log10(raw))
-    step = next(m * power for m in (1, 2, 5, 10) if m * power >= raw)
-    start = math.ceil(lo / step) * step
-    ticks = []
-    x = start
-    while x <= hi + 1e-9 * step:
-        ticks.append(round(x, 10))
-        x += step
-    return ticks
-
-
-def band_label(chart: OutcomeChart, i: int) -> str:
-    text = pct(chart.bands[i])
-    if chart.band_ci is not None:
-        lo, hi = chart.band_ci[i]
-        if hi > lo:
-            text += f" ({pct(lo)} to {pct(hi)})"
-    return text
-
-
-def _band_spans(chart: OutcomeChart, lo: float, hi: float):
-    edges = [lo] + [min(max(c, lo), hi) for c in chart.cuts] + [hi]
-    return list(zip(edges[:-1], edges[1:]))
-
-
-def to_svg(chart: OutcomeChart, width: int = 860, height: int = 440) -> str:
-    left, right, top, bottom = 70, 20, 70, 70
-    lo = min([b[0] for b in chart.bins] + chart.cuts + [chart.mean])
-    hi = max([b[1] for b in chart.bins] + chart.cuts + [chart.mean])
-    pad = (hi - lo) * 0.03 or 1.0
-    lo, hi = lo - pad, hi + pad
-    peak = max((b[2] for b in chart.bins), default=1.0) or 1.0
-    plot_w, plot_h = width - left - right, height - top - bottom
-
-    def x(v):
-        return left + (v - lo) / (hi - lo) * plot_w
-
-    def y(p):
-        return top + plot_h - p / peak * plot_h
-
-    out = _svg_head(width, height, left, chart.title)
-    for t in nice_ticks(lo, hi):
-        out.append(f'<line class="grid" x1="{x(t):.1f}" y1="{top}" x2="{x(t):.1f}" '
-                   f'y2="{top + plot_h}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{x(t):.1f}" y="{top + plot_h + 18}" font-size="11" '
-                   f'text-anchor="middle" fill="{TEXT}">{escape(compact_money(t))}</text>')
-    for b_lo, b_hi, p in chart.bins:
-        out.append(f'<rect class="bar" x="{x(b_lo):.2f}" y="{y(p):.2f}" '
-                   f'width="{max(x(b_hi) - x(b_lo) - 0.5, 0.5):.2f}" '
-                   f'height="{top + plot_h - y(p):.2f}" fill="{BAR}"/>')
-    out.append(f'<line class="axis" x1="{left}" y1="{top + plot_h}" x2="{left + plot_w}" '
-               f'y2="{top + plot_h}" stroke="{TEXT}"/>')
-    for c in chart.cuts:
-        out.append(f'<line class="cut" x1="{x(c):.1f}" y1="{top - 8}" x2="{x(c):.1f}" '
-                   f'y2="{top + plot_h}" stroke="{CUT}" stroke-width="1.5"/>')
-    for i, (a, b) in enumerate(_band_spans(chart, lo, hi)):
-        if i < len(chart.bands):
-            out.append(f'<text class="band" x="{(x(a) + x(b)) / 2:.1f}" y="{top - 14}" '
-                       f'font-size="13" text-anchor="middle" fill="{TEXT}">'
-                       f'{escape(band_label(chart, i))}</text>')
-    out.append(f'<line class="mean" x1="{x(chart.mean):.1f}" y1="{top}" x2="{x(chart.mean):.1f}" '
-               f'y2="{top + plot_h}" stroke="{MEAN}" stroke-width="2" stroke-dasharray="6 4"/>')
-    out.append(f'<text class="mean-label" x="{x(chart.mean) + 4:.1f}" y="{top + 14}" '
-               f'font-size="11" fill="{MEAN}">expected {escape(compact_money(chart.mean))}</text>')
-    out.append(f'<text class="axis-label" x="{left + plot_w / 2}" y="{height - 30}" font-size="12" '
-               f'text-anchor="middle" fill="{TEXT}">won total (currency units)</text>')
-    return _svg_tail(out, chart.note, left, height)
-
-
-def _svg_head(width: int, height: int, left: int, title: str) -> list[str]:
-    return [f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
-            f'viewBox="0 0 {width} {height}" font-family="Helvetica, Arial, sans-serif">',
-            f'<rect width="{width}" height="{height}" fill="white"/>',
-            f'<text class="title" x="{left}" y="24" font-size="16" fill="{TEXT}">'
-            f'{escape(title)}</text>']
-
-
-def _svg_tail(out: list[str], note: str, left: int, height: int) -> str:
-    if note:
-        out.append(f'<text class="note" x="{left}" y="{height - 10}" font-size="10" '
-                   f'fill="#555555">{escape(note)}</text>')
-    out.append("</svg>")
-    return "\n".join(out)
-
-
-def _pyplot():
-    """matplotlib's pyplot on the file-only backend, or a one-line error without it."""
-    try:
-        import matplotlib
-        matplotlib.use("Agg")
-        import matplotlib.pyplot as plt
-    except ImportError:
-        raise SqlriskError("chart: PNG output needs matplotlib: pip install 'sqlrisk[chart]' "
-                           "(or write .svg, which needs nothing)") from None
-    return matplotlib, plt
-
-
-def to_png(chart: OutcomeChart, path: str) -> None:
-    """The same picture through matplotlib (``pip install 'sqlrisk[chart]'``)."""
-    matplotlib, plt = _pyplot()
-    fig, ax = plt.subplots(figsize=(8.6, 4.4), dpi=100)
-    for b_lo, b_hi, p in chart.bins:
-        ax.bar(b_lo, p, width=b_hi - b_lo, align="edge", color=BAR)
-    lo, hi = ax.get_xlim()
-    for c in chart.cuts:
-        ax.axvline(c, color=CUT, linewidth=1.5)
-    top = ax.get_ylim()[1]
-    for i, (a, b) in enumerate(_band_spans(chart, lo, hi)):
-        if i < len(chart.bands):
-            ax.text((a + b) / 2, top * 1.02, band_label(chart, i), ha="center", fontsize=10)
-    ax.axvline(chart.mean, color=MEAN, linestyle="--", linewidth=2)
-    ax.text(chart.mean, top * 0.95, f" expected {compact_money(chart.mean)}", color=MEAN,
-            fontsize=9)
-    ax.xaxis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: compact_money(v)))
-    ax.set_xlabel("won total (currency units)")
-    ax.set_title(chart.title, loc="left", pad=24)
-    if chart.note:
-        fig.text(0.01, 0.01, chart.note, fontsize=8, color="#555555")
-    fig.tight_layout()
-    fig.savefig(path)
-    plt.close(fig)
-
-
-# -- reliability diagram ------------------------------------------------------------
-
-DIAGONAL = "#888888"
-POINT = "#2f6f4f"
+    curve: tuple[list[float], list[float]]  # polyline of P(total >= x) over x
+    cuts: list[CutMark]
+    bands: list[Band]
+    mean: float
+    quantiles: tuple[float, float, float]  # P10, P50, P90
+    note: str
+    envelope: tuple[list[float], list[float], list[float]] | None = None  # x, lo, hi
+    error: float = 0.0  # outcome_error of the outcome
+    trials: int = 0
 
 
 @dataclass
-class ReliabilityChart:
-    title: str
-    points: list[tuple[float, float, int]]  # (mean stated probability, observed rate, deals)
-    intervals: list[tuple[float, float]] | None = None  # (lo, hi) of the observed rate
-    note: str = ""
+class Drawn:
+    """A drawn figure and, in pixels (y up), the text boxes placed on it and the lines
+    (curves, drop lines) labels must keep off."""
+
+    fig: object
+    boxes: dict[str, Box] = field(default_factory=dict)
+    lines: list[tuple[list[float], list[float]]] = field(default_factory=list)
 
 
-def _radius(deals: int, most: int) -> float:
-    """Circle radius in pixels: area in proportion to the bin's deals (at least 2 pixels)."""
-    return max(2.0, 14.0 * math.sqrt(deals / most)) if most > 0 else 2.0
+def band_names(cut_names: list[str]) -> list[str]:
+    """Band names from cut names: below floor, floor to target, ..., stretch or more."""
+    if not cut_names:
+        return ["every total"]
+    inner = [f"{a} to {b}" for a, b in zip(cut_names[:-1], cut_names[1:])]
+    return [f"below {cut_names[0]}", *inner, f"{cut_names[-1]} or more"]
 
 
-def reliability_svg(chart: ReliabilityChart, width: int = 560, height: int = 590) -> str:
-    left, right, top, bottom = 70, 30, 50, 80
-    side = min(width - left - right, height - top - bottom)
-    most = max((d for _, _, d in chart.points), default=0)
+# -- pieces shared by the single chart and the panels ------------------------------
 
-    def x(p):
-        return left + p * side
+class Page:
+    """Text placed on a figure in pixels, remembered as boxes."""
 
-    def y(p):
-        return top + (1.0 - p) * side
+    def __init__(self, fig):
+        self.fig, self.drawn = fig, Drawn(fig)
+        self.width, self.height = fig_px(fig)
 
-    out = _svg_head(width, height, left, chart.title)
-    for t in nice_ticks(0.0, 1.0, 5):
-        out.append(f'<line class="grid" x1="{x(t):.1f}" y1="{top}" x2="{x(t):.1f}" '
-                   f'y2="{top + side}" stroke="{GRID}"/>')
-        out.append(f'<line class="grid" x1="{left}" y1="{y(t):.1f}" x2="{left + side}" '
-                   f'y2="{y(t):.1f}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{x(t):.1f}" y="{top + side + 18}" font-size="11" '
-                   f'text-anchor="middle" fill="{TEXT}">{t:.0%}</text>')
-        out.append(f'<text class="tick" x="{left - 6}" y="{y(t) + 4:.1f}" font-size="11" '
-                   f'text-anchor="end" fill="{TEXT}">{t:.0%}</text>')
-    out.append(f'<rect class="axis" x="{left}" y="{top}" width="{side}" height="{side}" '
-               f'fill="none" stroke="{TEXT}"/>')
-    out.append(f'<line class="diagonal" x1="{x(0):.1f}" y1="{y(0):.1f}" x2="{x(1):.1f}" '
-               f'y2="{y(1):.1f}" stroke="{DIAGONAL}" stroke-width="1.5" stroke-dasharray="6 4"/>')
-    for i, (stated, observed, deals) in enumerate(chart.points):
-        if chart.intervals is not None:
-            lo, hi = chart.intervals[i]
-            out.append(f'<line class="interval" x1="{x(stated):.1f}" y1="{y(lo):.1f}" '
-                       f'x2="{x(stated):.1f}" y2="{y(hi):.1f}" stroke="{POINT}"/>')
-        r = _radius(deals, most)
-        out.append(f'<circle class="point" cx="{x(stated):.1f}" cy="{y(observed):.1f}" '
-                   f'r="{r:.1f}" fill="{POINT}" fill-opacity="0.55" stroke="{POINT}"/>')
-        out.append(f'<text class="deals" x="{x(stated) + r + 3:.1f}" y="{y(observed) + 4:.1f}" '
-                   f'font-size="10" fill="{TEXT}">{deals:,}</text>')
-    out.append(f'<text class="axis-label" x="{left + side / 2}" y="{top + side + 40}" '
-               f'font-size="12" text-anchor="middle" fill="{TEXT}">stated win probability '
-               f'(mean in bin)</text>')
-    out.append(f'<text class="axis-label" x="18" y="{top + side / 2}" font-size="12" '
-               f'text-anchor="middle" fill="{TEXT}" transform="rotate(-90 18 {top + side / 2})">'
-               f'observed win rate</text>')
-    lines = chart.note.splitlines()
-    for k, line in enumerate(lines):
-        out.append(f'<text class="note" x="{left}" y="{height - 10 - 13 * (len(lines) - 1 - k)}" '
-                   f'font-size="10" fill="#555555">{escape(line)}</text>')
-    return _svg_tail(out, "", left, height)
+    def text(self, gid: str, x: float, y: float, text: str, size: float, ha: str = "left",
+             va: str = "bottom", **style) -> Box:
+        w, h = text_size(text, size, DPI)
+        x0 = {"left": x, "right": x - w, "center": x - w / 2}[ha]
+        y0 = {"bottom": y, "top": y - h, "center": y - h / 2}[va]
+        box = Box(x0, y0, x0 + w, y0 + h)
+        self.fig.text(x0 / self.width, y0 / self.height, text, fontsize=size, ha="left",
+                      va="bottom", gid=gid, **style)
+        self.drawn.boxes[gid] = box
+        return box
+
+    def frame(self, ax) -> Box:
+        x0, y0, w, h = ax.get_position().bounds
+        return Box(x0 * self.width, y0 * self.height, (x0 + w) * self.width,
+                   (y0 + h) * self.height)
 
 
-def reliability_png(chart: ReliabilityChart, path: str) -> None:
-    """The same diagram through matplotlib (``pip install 'sqlrisk[chart]'``)."""
-    matplotlib, plt = _pyplot()
-    fig, ax = plt.subplots(figsize=(5.6, 5.9), dpi=100)
-    ax.plot([0, 1], [0, 1], color=DIAGONAL, linestyle="--", linewidth=1.5)
-    most = max((d for _, _, d in chart.points), default=0)
-    for i, (stated, observed, deals) in enumerate(chart.points):
-        if chart.intervals is not None:
-            ax.vlines(stated, *chart.intervals[i], color=POINT, linewidth=1)
-        r = _radius(deals, most)
-        ax.scatter([stated], [observed], s=(1.5 * r) ** 2, color=POINT, alpha=0.55)
-        ax.annotate(f"{deals:,}", (stated, observed), xytext=(0.75 * r + 3, -3),
-                    textcoords="offset points", fontsize=8)
-    ax.set_xlim(0, 1)
+def _to_px(ax, xs, ys) -> tuple[list[float], list[float]]:
+    pts = ax.transData.transform(np.column_stack([xs, ys]))
+    return pts[:, 0].tolist(), pts[:, 1].tolist()
+
+
+def _piece(xs, ys, a: float, b: float):
+    """The polyline (xs, ys) between x = a and x = b, ends interpolated."""
+    xs, ys = np.asarray(xs, float), np.asarray(ys, float)
+    keep = (xs >= a) & (xs <= b)  # a step's two vertices at one x both stay
+    head = [] if a in xs else [a]
+    tail = [] if b in xs else [b]
+    return (np.concatenate([head, xs[keep], tail]),
+            np.concatenate([np.interp(head, xs, ys), ys[keep], np.interp(tail, xs, ys)]))
+
+
+def _plot_curve(ax, page: Page, chart: OutcomeChart, gid: str, lw: float) -> None:
+    xs, ys = chart.curve
+    lo, hi = xs[0], xs[-1]
+    ax.set_xlim(lo, hi)
     ax.set_ylim(0, 1)
-    ax.set_aspect("equal")
-    percent = matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:.0%}")
-    ax.xaxis.set_major_formatter(percent)
-    ax.yaxis.set_major_formatter(percent)
-    ax.grid(color=GRID)
-    ax.set_xlabel("stated win probability (mean in bin)")
-    ax.set_ylabel("observed win rate")
-    ax.set_title(chart.title, loc="left")
-    if chart.note:
-        fig.text(0.01, 0.01, chart.note, fontsize=7, color="#555555")
-    fig.tight_layout(rect=(0, 0.025 * (1 + chart.note.count("\n")), 1, 1))
-    fig.savefig(path)
-    plt.close(fig)
+    edges = [lo] + [min(max(c.value, lo), hi) for c in chart.cuts] + [hi]
+    for k, colour in enumerate(band_colours(len(edges) - 1)):
+        if edges[k + 1] > edges[k]:
+            px, py = _piece(xs, ys, edges[k], edges[k + 1])
+            ax.fill_between(px, 0, py, color=colour, linewidth=0, gid=f"{gid}band-{k + 1}")
+    if chart.envelope is not None:
+        ex, elo, ehi = chart.envelope
+        ax.fill_between(ex, elo, ehi, color=INK, alpha=0.3, linewidth=0, gid=f"{gid}envelope")
+        lw *= 0.6
+        page.drawn.lines += [_to_px(ax, ex, elo), _to_px(ax, ex, ehi)]
+    ax.plot(xs, ys, color=INK, linewidth=lw, gid=f"{gid}curve", solid_joinstyle="miter")
+    page.drawn.lines.append(_to_px(ax, xs, ys))
+    for i, c in enumerate(chart.cuts, start=1):
+        if lo <= c.value <= hi:
+            ax.plot([c.value, c.value], [0, c.reach], color=INK, linewidth=0.8,
+                    linestyle=(0, (2, 2)), alpha=0.7, gid=f"{gid}cut-drop-{i}")
+            page.drawn.lines.append(_to_px(ax, [c.value, c.value], [0, c.reach]))
+            ax.plot([c.value], [c.reach], marker="o", markersize=6.5 if lw > 1.5 else 4.5,
+                    markerfacecolor="white", markeredgecolor=INK, markeredgewidth=1.5,
+                    gid=f"{gid}cut-point-{i}")
+
+
+def _label_cuts(ax, page: Page, chart: OutcomeChart, gid: str, size: float,
+                text_of, fixed: list[Box]) -> None:
+    """Each cut's label at the nearest free place; where a crowded panel has none, the
+    label folds onto two lines (name, odds), and failing that shows the odds alone."""
+    lo, hi = chart.curve[0][0], chart.curve[0][-1]
+    shown = [(i, c) for i, c in enumerate(chart.cuts, start=1) if lo <= c.value <= hi]
+    anchors = [tuple(ax.transData.transform((c.value, c.reach))) for _, c in shown]
+    texts, boxes = [], []
+    for (_, cut), anchor in zip(shown, anchors):
+        for text in dict.fromkeys([text_of(cut), f"{cut.name}\n{pct(cut.reach)}",
+                                   pct(cut.reach)]):
+            box, free = place_one(anchor, text_size(text, size, DPI), page.drawn.lines,
+                                  page.frame(ax), [*boxes, *fixed])
+            if free:
+                break
+        texts.append(text)
+        boxes.append(box)
+    for (i, _), text, box, (x, y) in zip(shown, texts, boxes, anchors):
+        page.text(f"{gid}cut-label-{i}", box.x0, box.y0, text, size, color=INK)
+        near_x = min(max(x, box.x0), box.x1)
+        near_y = min(max(y, box.y0), box.y1)
+        if math.hypot(near_x - x, near_y - y) > 14:  # far from its point: a leader line
+            page.fig.lines.append(_leader(page, x, y, near_x, near_y, f"{gid}cut-leader-{i}"))
+
+
+def _leader(page: Page, x0: float, y0: float, x1: float, y1: float, gid: str):
+    import matplotlib.lines as lines
+
+    w, h = page.width, page.height
+    return lines.Line2D([x0 / w, x1 / w], [y0 / h, y1 / h], transform=page.fig.transFigure,
+                        color=INK, linewidth=0.6, alpha=0.6, gid=gid)
+
+
+# -- one chart --------------------------------------------------------------------
+
+MAIN = (0.10, 0.30, 0.61, 0.58)  # the plot, in figure fractions
+STRIP = (0.10, 0.115, 0.61, 0.06)  # the P10-P90 bar under it
+PANEL_X = 0.745
+
+
+def outcome_figure(chart: OutcomeChart) -> Drawn:
+    _, plt = pyplot()
+    fig = plt.figure(figsize=(9.6, 5.2), dpi=DPI)
+    page = Page(fig)
+    ax = fig.add_axes(MAIN)
+    quiet_frame(ax)
+    _plot_curve(ax, page, chart, "", 2.0)
+    percent_ticks(ax)
+    money_ticks(ax)
+    ax.set_yticks([0, 0.2, 0.4, 0.6, 0.8, 1.0])
+    ax.set_ylabel("chance of reaching\nat least this total")
+    ax.set_xlabel("won total", labelpad=3)
+    page.text("title", 0.10 * page.width, 0.925 * page.height, chart.title, 15, weight="bold")
+    _label_cuts(ax, page, chart, "", 9,
+                lambda c: f"{c.name} {compact_money(c.value)}\n{pct(c.reach)} reach", [])
+    _strip(fig, ax, page, chart)
+    _side_panel(page, chart)
+    page.text("note", 0.10 * page.width, 0.02 * page.height, chart.note, 8.5, color=QUIET)
+    return page.drawn
+
+
+def _strip(fig, ax, page: Page, chart: OutcomeChart) -> None:
+    """P10 to P90 as a bar, P50 as a tick, the expected value as a diamond."""
+    strip = fig.add_axes(STRIP, sharex=ax)
+    strip.set_ylim(0, 1)
+    strip.axis("off")
+    p10, p50, p90 = chart.quantiles
+    strip.plot([p10, p90], [0.5, 0.5], color=INK, alpha=0.3, linewidth=7,
+               solid_capstyle="butt", gid="range-bar")
+    strip.plot([p50, p50], [0.12, 0.88], color=INK, linewidth=2, gid="p50-tick")
+    strip.plot([chart.mean], [0.5], marker="D", markersize=6, color=INK,
+               markeredgecolor="white", gid="expected-mark")
+    frame = page.frame(strip)
+    mid = (frame.y0 + frame.y1) / 2
+
+    def at(v):
+        return ax.transData.transform((v, 0))[0]
+
+    page.text("p10-label", at(p10) - 5, mid, "P10", 8.5, ha="right", va="center", color=QUIET)
+    page.text("p90-label", at(p90) + 5, mid, "P90", 8.5, ha="left", va="center", color=QUIET)
+    page.text("p50-label", at(p50), frame.y1 + 1, "P50", 8.5, ha="center", color=QUIET)
+    page.text("expected-label", at(chart.mean), frame.y0 - 1, "expected", 8.5, ha="center",
+              va="top", color=QUIET)
+
+
+def _side_panel(page: Page, chart: OutcomeChart) -> None:
+    """Each band's probability beside its colour, then the key totals."""
+    x, right = PANEL_X * page.width, 0.985 * page.width
+    y = 0.86 * page.height
+    page.text("bands-heading", x, y, "Band odds", 10, weight="bold")
+    colours = band_colours(len(chart.bands))
+    for k, (band, colour) in enumerate(zip(chart.bands, colours), start=1):
+        y -= 25
+        page.fig.patches.append(swatch(page, x, y, colour, f"swatch-{k}"))
+        page.text(f"band-name-{k}", x + 20, y, band.name[:24], 9)
+        page.text(f"band-prob-{k}", right, y, pct(band.prob), 9, ha="right", weight="bold")
+        if band.ci is not None:
+            y -= 14
+            page.text(f"band-ci-{k}", x + 20, y, f"95%: {pct(band.ci[0])} to {pct(band.ci[1])}",
+                      7.5, color=QUIET)
+    y -= 40
+    page.text("totals-heading", x, y, "Won total", 10, weight="bold")
+    p10, p50, p90 = chart.quantiles
+    for key, value in (("expected", chart.mean), ("P10", p10), ("P50", p50), ("P90", p90)):
+        y -= 22
+        page.text(f"total-name-{key}", x + 20, y, key, 9)
+        page.text(f"total-value-{key}", right, y, money(value), 9, ha="right")
+
+
+def swatch(page: Page, x: float, y: float, colour: str, gid: str):
+    """A small square of a band's colour at (x, y) pixels, beside its name."""
+    import matplotlib.patches as patches
+
+    return patches.Rectangle((x / page.width, (y + 1) / page.height), 13 / page.width,
+                             11 / page.height, transform=page.fig.transFigure,
+                             facecolor=colour, edgecolor=INK, linewidth=0.6, gid=gid)
+
+
+# -- small multiples --------------------------------------------------------------
+
+CELL = (3.3, 2.5)  # inches per panel
+
+
+def grid_page(count: int, cell: tuple[float, float], foot: float):
+    """A page for ``count`` panels of ``cell`` inches (up to 4 across) and ``foot`` inches
+    below them: (page, columns, width, height)."""
+    _, plt = pyplot()
+    cols = 1 if count == 1 else 2 if count <= 4 else 3 if count <= 9 else 4
+    width, height = cols * cell[0] + 0.3, math.ceil(count / cols) * cell[1] + foot
+    return Page(plt.figure(figsize=(width, height), dpi=DPI)), cols, width, height
+
+
+def outcome_grid(charts: list[OutcomeChart], note: str) -> Drawn:
+    """Every chart as a small panel of one page, in the given order, with its own cuts."""
+    page, cols, width, height = grid_page(len(charts), CELL, 0.45)
+    fig = page.fig
+    placed: list[Box] = []
+    for n, chart in enumerate(charts):
+        r, c = divmod(n, cols)
+        left = (0.15 + c * CELL[0] + 0.5) / width
+        bottom = (height - (r + 1) * CELL[1] + 0.35) / height
+        ax = fig.add_axes((left, bottom, (CELL[0] - 0.7) / width, (CELL[1] - 0.95) / height))
+        quiet_frame(ax)
+        gid = f"p{n + 1}-"
+        _plot_curve(ax, page, chart, gid, 1.4)
+        percent_ticks(ax)
+        money_ticks(ax, 4)
+        ax.set_yticks([0, 0.5, 1.0])
+        ax.tick_params(labelsize=7.5)
+        top = (bottom + (CELL[1] - 0.95) / height) * page.height
+        p10, _, p90 = chart.quantiles
+        page.text(f"{gid}title", left * page.width - 30, top + 21, chart.title[:34], 9.5,
+                  weight="bold")
+        page.text(f"{gid}subtitle", left * page.width - 30, top + 6,
+                  f"expected {compact_money(chart.mean)} · P10-P90 {compact_money(p10)}"
+                  f"-{compact_money(p90)}", 7.5, color=QUIET)
+        _label_cuts(ax, page, chart, gid, 7.5, lambda m: f"{m.name} {pct(m.reach)}", placed)
+        placed = list(page.drawn.boxes.values())
+    page.text("note", 0.15 * DPI, 0.08 * DPI, note, 8, color=QUIET)
+    return page.drawn

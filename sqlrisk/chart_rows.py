@@ -1,28 +1,39 @@
-"""From a query result with an outcome column (or a reliability table) to chart files.
+"""From a query result with an outcome column to chart files (and, by the result's shape,
+to the odds over time of ``chart_history`` or the reliability diagram of
+``chart_reliability``).
 
-The numbers on an outcome chart come from sqlrisk's own SQL functions
-(``outcome_histogram``, ``outcome_bands``, ``outcome_bands_ci``,
-``outcome_mean``) run on the result rows, so a picture shows exactly what a
-query would return. A reliability diagram plots the bins of a result shaped
-like ``sql/reliability_table.sql`` as they are.
+The numbers on an outcome chart come from sqlrisk's own SQL functions (``outcome_reach``
+on the curve, ``outcome_bands``, ``outcome_bands_ci``, ``outcome_quantiles``,
+``outcome_mean``, ``outcome_error``, ``wilson_interval`` for a simulated curve's
+envelope) run on the result rows, so a picture shows exactly what a query would return.
 """
 
 from __future__ import annotations
 
-import re
 from pathlib import Path
 
 import duckdb
+import numpy as np
 import pyarrow as pa
 
 from . import chart_drawing as drawing
+from . import chart_history
+from .chart_reliability import draw_reliability, is_reliability_table, RELIABILITY_COLUMNS
+from .chart_files import label_column, named_file, note_for as _note, quote as _q
+from .chart_style import save
+from .kernels.readout import is_smooth
 from .adapters.sql_types import OUTCOME_FIELDS, OUTCOME_SQL
 from .errors import ParameterError
 
-HISTOGRAM_BINS = 60
 ROWS = "__sqlrisk_chart_rows"
+ROW_ID = "__sqlrisk_row"
+POINTS = "__sqlrisk_chart_x"
 #: Columns that give a row's cuts when it has no ``cuts`` column and no --cuts is given.
 NAMED_CUTS = ("floor", "target", "stretch")
+#: Totals at which the curve is evaluated on a smooth outcome; an outcome read as points
+#: with at most STEP_POINTS totals in view is drawn as its exact step function instead.
+CURVE_POINTS = 400
+STEP_POINTS = 600
 
 
 def find_outcome_column(table: pa.Table) -> str | None:
@@ -37,176 +48,172 @@ def outcome_column(table: pa.Table) -> str:
     column = find_outcome_column(table)
     if column is None:
         raise ParameterError(
-            "chart: the query returns no outcome column (a STRUCT like outcome_dist's) and no "
-            f"reliability columns ({', '.join(RELIABILITY_COLUMNS)}); select an outcome, e.g. "
-            "outcome_dist(amount, win_prob) AS outcome, or the bins of a reliability table "
-            "(see sql/reliability_table.sql)")
+            "chart: the query returns no outcome column (a STRUCT like outcome_dist's), no "
+            f"reliability columns ({', '.join(RELIABILITY_COLUMNS)}) and no dated band odds "
+            "(a date column with bands or below_floor ... stretch_or_more); select an outcome, "
+            "e.g. outcome_dist(amount, win_prob) AS outcome (see sql/region_outcomes.sql)")
     return column
 
 
-def label_column(table: pa.Table, skip: str) -> str | None:
-    for name, typ in zip(table.column_names, table.schema.types):
-        if name != skip and (pa.types.is_string(typ) or pa.types.is_large_string(typ)):
-            return name
-    return None
+def parse_cuts(text: str, error=ParameterError) -> list[tuple[str | None, float]]:
+    """``'floor=800000,target=1.2e6'`` or ``'800000,1200000'`` -> [(name or None, value)]."""
+    out = []
+    for item in text.split(","):
+        name, _, value = item.strip().rpartition("=")
+        try:
+            out.append((name.strip() or None, float(value)))
+        except ValueError:
+            raise error(f"--cuts: {item.strip()!r} is not a number or NAME=NUMBER; write e.g. "
+                        "floor=800000,target=1200000") from None
+    return out
 
 
-def accuracy_text(error: float) -> str:
-    """An outcome's accuracy in probability, as a reader of odds reads it (from outcome_error)."""
-    if error == 0:
-        return "exact odds"
-    points = 100 * error
-    return f"odds within +/-{points:.2g} percentage points"
+def _cut_sql(table: pa.Table, cuts) -> tuple[str, str, list]:
+    """SQL for a row's cut values and cut names, and the parameters they bind."""
+    if cuts is not None:
+        return "?::DOUBLE[]", "?::VARCHAR[]", [[v for _, v in cuts], [n for n, _ in cuts]]
+    if "cuts" in table.column_names:
+        typ = table.schema.field("cuts").type
+        if pa.types.is_list(typ) and pa.types.is_struct(typ.value_type):
+            fields = {typ.value_type.field(i).name for i in range(typ.value_type.num_fields)}
+            if not {"name", "value"} <= fields:
+                raise ParameterError(
+                    "chart: the cuts column holds structs without name and value fields "
+                    f"({', '.join(sorted(fields))}); give cuts as numbers or as "
+                    "{'name': ..., 'value': ...} structs")
+            return ("list_transform(cuts, lambda c: c.value::DOUBLE)",
+                    "list_transform(cuts, lambda c: c.name::VARCHAR)", [])
+    named = [c for c in NAMED_CUTS if c in table.column_names]
+    values = ", ".join(f"{_q(c)}::DOUBLE" for c in named)
+    names = ", ".join(f"CASE WHEN {_q(c)} IS NOT NULL THEN '{c}' END" for c in named)
+    named_values = f"coalesce(list_filter([{values}], lambda c: c IS NOT NULL), [])::DOUBLE[]"
+    named_names = f"coalesce(list_filter([{names}], lambda c: c IS NOT NULL), [])::VARCHAR[]"
+    if "cuts" in table.column_names:  # numbers; named after floor, target, stretch if they match
+        if not named:
+            return "cuts::DOUBLE[]", "NULL::VARCHAR[]", []
+        return ("cuts::DOUBLE[]",
+                f"CASE WHEN cuts::DOUBLE[] = {named_values} THEN {named_names} END", [])
+    if named:
+        return named_values, named_names, []
+    return "[]::DOUBLE[]", "[]::VARCHAR[]", []
 
 
-def _note(error: float, trials: int) -> str:
-    if trials > 0:
-        return (f"Monte Carlo, {trials:,} trials: {accuracy_text(error)} (95%); "
-                "band labels show 95% Wilson intervals.")
-    return accuracy_text(error).capitalize() + "."
+def outcome_charts(con: duckdb.DuckDBPyConnection, table: pa.Table, where: str | None = None,
+                   cuts=None) -> list[drawing.OutcomeChart]:
+    """One chart description per row of ``table`` (after ``where``), its numbers from
+    sqlrisk's SQL functions on the row's outcome."""
+    column = outcome_column(table)
+    label = label_column(table, column)
+    outcome = f"{_q(column)}::{OUTCOME_SQL}"
+    values, names, args = _cut_sql(table, cuts)
+    table = table.append_column(ROW_ID, pa.array(range(len(table)), pa.int64()))
+    con.register(ROWS, table)
+    try:
+        sql = (f"SELECT {ROW_ID}, {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'}, "
+               f"cv, cn, o, outcome_bands(o, cv), outcome_bands_ci(o, cv, 0.95), "
+               f"outcome_mean(o), outcome_error(o), "
+               f"outcome_quantiles(o, [0.001, 0.1, 0.5, 0.9, 0.999]) "
+               f"FROM (SELECT *, {outcome} AS o, {values} AS cv, "
+               f"{names} AS cn FROM {ROWS}) AS r "
+               f"WHERE o IS NOT NULL" + (f" AND ({where})" if where else "")
+               + f" ORDER BY {ROW_ID}")
+        rows = con.execute(sql, args).fetchall()
+        if not rows:
+            raise ParameterError("chart: no row to draw"
+                                 + (f" matches --where {where!r}" if where else ""))
+        grids = {row[0]: _curve_points(row[4], row[2], row[9]) for row in rows}
+        reach = _reach(con, grids, outcome)
+    finally:
+        con.unregister(ROWS)
+    return [_chart(row, *grids[row[0]], reach[row[0]]) for row in rows]
+
+
+def _curve_points(o, cut_values, q) -> tuple[np.ndarray, bool]:
+    """Totals to evaluate the curve at, and whether they are the outcome's own points (a
+    step function) or a grid over a smooth reading."""
+    lo = min([q[0], *cut_values, q[1] - 1.0])
+    hi = max([q[4], *cut_values, q[3] + 1.0])
+    pad = 0.06 * (hi - lo)
+    lo, hi = lo - pad, hi + pad
+    mass = np.asarray(o["mass"], float)
+    if o["trials"] == 0 and not is_smooth(o["step"], o["rounding"]):
+        atoms = o["origin"] + o["step"] * np.flatnonzero(mass > 0)
+        atoms = atoms[(atoms > lo) & (atoms < hi)]
+        if len(atoms) <= STEP_POINTS:
+            return np.concatenate([[lo], atoms, [hi]]), True
+    return np.linspace(lo, hi, CURVE_POINTS), False
+
+
+def _reach(con, grids, outcome: str) -> dict:
+    """P(total >= x) at every grid point of every row (outcome_reach), with the 95% Wilson
+    interval (wilson_interval) when the outcome is simulated."""
+    ids = np.concatenate([np.full(len(x), k) for k, (x, _) in grids.items()])
+    xs = np.concatenate([x for x, _ in grids.values()])
+    con.register(POINTS, pa.table({"k": pa.array(ids, pa.int64()), "x": pa.array(xs)}))
+    try:
+        got = con.execute(
+            "SELECT q.k, q.r, CASE WHEN q.trials > 0 THEN wilson_interval(round(q.r * q.trials), "
+            "q.trials) END FROM (SELECT p.k, p.x, outcome_reach(s.o, p.x) AS r, "
+            f"s.o.trials AS trials FROM {POINTS} AS p JOIN (SELECT {ROW_ID} AS k, {outcome} AS o "
+            f"FROM {ROWS}) AS s USING (k)) AS q ORDER BY q.k, q.x").fetchall()
+    finally:
+        con.unregister(POINTS)
+    out: dict = {}
+    for k, r, ci in got:
+        out.setdefault(k, []).append((r, ci))
+    return out
+
+
+def _chart(row, xs, steps, reach) -> drawing.OutcomeChart:
+    _, name, cut_values, cut_names, o, bands, ci, mean, error, q = row
+    ys = np.array([r for r, _ in reach])
+    if steps:  # on (x[j-1], x[j]] the chance of reaching is the one at x[j]
+        px = np.repeat(xs, 2)[:-1]
+        py = np.repeat(ys, 2)[1:]
+        curve = (px.tolist(), py.tolist())
+    else:
+        curve = (xs.tolist(), ys.tolist())
+    envelope = None
+    if o["trials"] > 0:
+        envelope = (xs.tolist(), [c["lo"] for _, c in reach], [c["hi"] for _, c in reach])
+    cut_names = list(cut_names) if cut_names else []
+    names = [(cut_names[j] if j < len(cut_names) and cut_names[j] else f"cut {j + 1}")
+             for j in range(len(cut_values))]
+    marks = [drawing.CutMark(n, v, float(sum(bands[j + 1:])))
+             for j, (n, v) in enumerate(zip(names, cut_values))]
+    band_list = [drawing.Band(n, p, (c["lo"], c["hi"]) if o["trials"] > 0 else None)
+                 for n, p, c in zip(drawing.band_names(names), bands, ci)]
+    return drawing.OutcomeChart(title=name or f"row {row[0] + 1}", curve=curve, cuts=marks,
+                                bands=band_list, mean=mean, quantiles=(q[1], q[2], q[3]),
+                                note=_note(error, o["trials"]), envelope=envelope,
+                                error=error, trials=o["trials"])
+
+
+def grid_note(charts: list[drawing.OutcomeChart]) -> str:
+    """The page's accuracy line: its least exact panel's."""
+    worst = max(charts, key=lambda c: (c.error, c.trials))
+    if len(charts) == 1 or worst.error == 0:
+        return worst.note
+    return worst.note.rstrip(".") + " (the least exact panel)."
 
 
 def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
-              where: str | None = None, cuts: list[float] | None = None) -> list[Path]:
-    """One chart per row of ``table`` (after ``where``); returns the files written.
+              where: str | None = None, cuts=None, grid: bool = False) -> list[Path]:
+    """Charts of the rows of ``table`` (after ``where``); returns the files written.
 
-    A result without an outcome column but with the reliability table's columns
-    is drawn as a reliability diagram instead (see ``draw_reliability``).
+    An outcome column gives one exceedance chart per row (``grid``: one page of panels).
+    A date column with band odds, on several dates, gives the odds over time
+    (``chart_history``); the reliability table's columns a reliability diagram.
     """
+    if chart_history.is_history(table):
+        return chart_history.draw(con, table, out, where=where, grid=grid)
     if find_outcome_column(table) is None and is_reliability_table(table):
-        return draw_reliability(con, table, out, where=where, cuts=cuts)
-    column = outcome_column(table)
-    label = label_column(table, column)
-    con.register(ROWS, table)
-    try:
-        named = [c for c in NAMED_CUTS if c in table.column_names]
-        args = []
-        if cuts is None and "cuts" in table.column_names:
-            cut_sql = "cuts::DOUBLE[]"
-        elif cuts is None and named:  # the columns floor, target, stretch (those present)
-            cut_sql = ("coalesce(list_filter([" + ", ".join(f"{_q(c)}::DOUBLE" for c in named)
-                       + "], lambda c: c IS NOT NULL), [])::DOUBLE[]")
-        else:
-            cut_sql, args = "?::DOUBLE[]", [cuts or []]
-        sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
-               f"{cut_sql} AS cuts, o, outcome_histogram(o, {HISTOGRAM_BINS}) AS hist, "
-               f"outcome_bands(o, {cut_sql}) AS bands, "
-               f"outcome_bands_ci(o, {cut_sql}, 0.95) AS ci, outcome_mean(o) AS mean, "
-               f"outcome_error(o) AS error "
-               f"FROM (SELECT *, {_q(column)}::{OUTCOME_SQL} AS o FROM {ROWS}) AS r "
-               f"WHERE o IS NOT NULL" + (f" AND ({where})" if where else ""))
-        rows = con.execute(sql, args + args + args).fetchall()
-    finally:
-        con.unregister(ROWS)
-    if not rows:
-        raise ParameterError("chart: no row to draw" + (f" matches --where {where!r}" if where else ""))
+        return draw_reliability(con, table, out, where=where, cuts=cuts, grid=grid)
+    charts = outcome_charts(con, table, where, cuts)
+    if grid:
+        return [save(drawing.outcome_grid(charts, grid_note(charts)).fig, out)]
     written, taken = [], set()
-    for i, (name, row_cuts, o, hist, bands, ci, mean, error) in enumerate(rows, start=1):
-        spec = drawing.OutcomeChart(
-            title=name or f"row {i}",
-            bins=[(b["lo"], b["hi"], b["prob"]) for b in hist],
-            cuts=list(row_cuts or []),
-            bands=list(bands),
-            band_ci=[(c["lo"], c["hi"]) for c in ci] if o["trials"] > 0 else None,
-            mean=mean,
-            note=_note(error, o["trials"]),
-        )
-        path = named_file(out, name, i, len(rows), taken)
-        written.append(_save(spec, path, drawing.to_svg, drawing.to_png))
+    for i, spec in enumerate(charts, start=1):
+        path = named_file(out, spec.title, i, len(charts), taken)
+        written.append(save(drawing.outcome_figure(spec).fig, path))
     return written
-
-
-def slug(text: str) -> str:
-    """``text`` as a file-name part: letters, digits, ``_`` and ``-``; runs of others -> ``-``."""
-    return re.sub(r"[^A-Za-z0-9_]+", "-", text).strip("-").lower() or "row"
-
-
-def named_file(out: Path, label: str | None, i: int, count: int, taken: set) -> Path:
-    """``out`` for a single chart; for several, FILE-LABEL.svg after each row's label
-    (``owners-own_017.svg``; ``row-3`` without one), a repeated label numbered on."""
-    if count == 1:
-        return out
-    stem = f"{out.stem}-{slug(label) if label else f'row-{i}'}"
-    candidate, n = stem, 2
-    while candidate in taken:
-        candidate, n = f"{stem}-{n}", n + 1
-    taken.add(candidate)
-    return out.with_name(candidate + out.suffix)
-
-
-def _save(spec, path: Path, svg, png) -> Path:
-    if path.suffix.lower() == ".png":
-        png(spec, str(path))
-    else:
-        path.write_text(svg(spec))
-    return path
-
-
-# -- reliability diagrams ----------------------------------------------------------
-
-RELIABILITY_COLUMNS = ("stated_mean", "observed_rate", "deals")
-INTERVAL_COLUMNS = ("wilson_lo", "wilson_hi")
-
-
-def is_reliability_table(table: pa.Table) -> bool:
-    """True when ``table`` has the reliability table's columns (see sql/reliability_table.sql)."""
-    return set(RELIABILITY_COLUMNS) <= set(table.column_names)
-
-
-def draw_reliability(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
-                     where: str | None = None, cuts: list[float] | None = None) -> list[Path]:
-    """A reliability diagram of the rows of ``table`` (after ``where``); one per label.
-
-    Rows are bins: ``stated_mean`` (x), ``observed_rate`` (y) and ``deals``
-    (circle size), with ``wilson_lo``/``wilson_hi`` as whiskers when present.
-    Bins without deals are left out. A text column, if any, splits the rows
-    into one diagram per value (e.g. one per stage).
-    """
-    if cuts is not None:
-        raise ParameterError("chart: --cuts marks band cuts on an outcome chart; a reliability "
-                             "diagram has none (leave --cuts out)")
-    label = label_column(table, "")
-    has_ci = set(INTERVAL_COLUMNS) <= set(table.column_names)
-    con.register(ROWS, table)
-    try:
-        sql = (f"SELECT {('CAST(' + _q(label) + ' AS VARCHAR)') if label else 'NULL'} AS label, "
-               "stated_mean::DOUBLE, observed_rate::DOUBLE, deals::BIGINT, "
-               + ("wilson_lo::DOUBLE, wilson_hi::DOUBLE " if has_ci else "NULL, NULL ")
-               + f"FROM {ROWS} WHERE deals > 0 AND stated_mean IS NOT NULL "
-               "AND observed_rate IS NOT NULL" + (f" AND ({where})" if where else "")
-               + " ORDER BY label, stated_mean")
-        rows = con.execute(sql).fetchall()
-    finally:
-        con.unregister(ROWS)
-    if not rows:
-        raise ParameterError("chart: no bin with deals to draw"
-                             + (f" matches --where {where!r}" if where else ""))
-    for name, value in (("stated_mean", min(r[1] for r in rows)),
-                        ("stated_mean", max(r[1] for r in rows)),
-                        ("observed_rate", min(r[2] for r in rows)),
-                        ("observed_rate", max(r[2] for r in rows))):
-        if not 0.0 <= value <= 1.0:
-            raise ParameterError(f"chart: {name} {value!r} is outside [0, 1]; a reliability "
-                                 "diagram plots probabilities (were percentages given?)")
-    labels = list(dict.fromkeys(r[0] for r in rows))
-    written, taken = [], set()
-    for i, name in enumerate(labels, start=1):
-        mine = [r for r in rows if r[0] == name]
-        deals = sum(r[3] for r in mine)
-        spec = drawing.ReliabilityChart(
-            title=name or "Stated win probability against observed win rate",
-            points=[(r[1], r[2], r[3]) for r in mine],
-            intervals=[(r[4], r[5]) for r in mine] if has_ci and all(
-                r[4] is not None and r[5] is not None for r in mine) else None,
-            note=(f"{deals:,} closed deals in {len(mine)} bins; circle area in proportion to deals"
-                  + ("; whiskers: 95% Wilson intervals" if has_ci else "") + ".\n"
-                  "Dashed line: observed = stated (a perfectly calibrated forecast)."),
-        )
-        path = named_file(out, name, i, len(labels), taken)
-        written.append(_save(spec, path, drawing.reliability_svg, drawing.reliability_png))
-    return written
-
-
-def _q(name: str) -> str:
-    return '"' + name.replace('"', '""') + '"'
-

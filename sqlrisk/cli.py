@@ -232,16 +232,19 @@ def run(
 def chart(
     query: str = typer.Argument(..., help=QUERY_HELP),
     out: Path = typer.Option(..., "--output", "-o",
-                             help="Picture to write: FILE.svg (no extra needed) or FILE.png "
-                                  "(needs the sqlrisk[chart] extra). Several rows give "
-                                  "one file each, named after the row's label: "
-                                  "FILE-tidewater-bay.svg, ..."),
+                             help="Picture to write: FILE.svg or FILE.png. Several rows "
+                                  "give one file each, named after the row's label "
+                                  "(FILE-tidewater-bay.svg, ...), or one page with --grid."),
     where: Optional[str] = typer.Option(
         None, "--where", help="Keep only the result rows matching this SQL condition, "
                               "e.g. \"region = 'Tidewater Bay'\"."),
     cuts: Optional[str] = typer.Option(
-        None, "--cuts", help="Band cuts to draw, comma separated (default: the result's "
-                             "'cuts' column, else its floor, target and stretch columns)."),
+        None, "--cuts", help="Band cuts to draw, comma separated, each a number or NAME=NUMBER "
+                             "(floor=800000,target=1200000); default: the result's 'cuts' "
+                             "column, else its floor, target and stretch columns."),
+    grid: bool = typer.Option(
+        False, "--grid", help="Draw every row as a small panel of one page (in the query's "
+                              "order) instead of one file per row."),
     db: Optional[str] = typer.Option(None, "--db", help=DB_HELP),
     source: list[str] = typer.Option([], "--source", help=SOURCE_HELP),
     column: list[str] = typer.Option([], "--column", help=COLUMN_HELP),
@@ -249,25 +252,24 @@ def chart(
     param: list[str] = typer.Option([], "--param", "-p", help=PARAM_HELP),
     strict: bool = typer.Option(False, "--strict", help=STRICT_HELP),
 ) -> None:
-    """Draw the distribution of the total for each row of a query that returns an outcome,
-    or a reliability diagram for a query that returns bins like reliability_table.
+    """Draw, for each row of a query that returns an outcome, the chance of reaching at least
+    each total; the odds over time for dated band odds; or a reliability diagram.
 
-    On an outcome chart each cut is a vertical line with its band's probability written on
-    the band; the expected value is marked. A result with columns stated_mean, observed_rate
-    and deals (and wilson_lo, wilson_hi as whiskers) is drawn as a reliability diagram:
-    one circle per bin, sized by its deals, against the diagonal of perfect calibration.
+    On an outcome chart each cut is a labelled point on the curve with its reach odds, the
+    bands are shaded, and a bar under the axis runs from P10 to P90. A result with a date
+    column and band odds on several dates (odds_history, band_history) is drawn as the band
+    odds over time. A result with columns stated_mean, observed_rate and deals is drawn as
+    a reliability diagram.
 
     Examples:
       sqlrisk chart region_outcomes --where "region = 'Tidewater Bay'" --output tidewater.svg
+      sqlrisk chart region_outcomes --grid --output regions.png
+      sqlrisk chart odds_history --db forecast.duckdb -p owner=own_032 --output own_032.svg
       sqlrisk chart reliability_table --db forecast.duckdb --output reliability.svg
     """
     if out.suffix.lower() not in (".svg", ".png"):
         raise typer.BadParameter("the picture must be a .svg or .png file", param_hint="--output")
-    try:
-        cut_values = [float(c) for c in cuts.split(",")] if cuts else None
-    except ValueError:
-        raise typer.BadParameter(f"{cuts!r} is not a comma-separated list of numbers",
-                                 param_hint="--cuts") from None
+    cut_values = chart_rows.parse_cuts(cuts, typer.BadParameter) if cuts else None
     try:
         saved = queries.find(query)
         params = runner.split_pairs(param, "--param")
@@ -275,7 +277,8 @@ def chart(
         try:
             _prepare(con, saved, params, config, source, column, strict)
             result = runner.run_query(con, saved, params)
-            written = chart_rows.draw_rows(con, result.table, out, where=where, cuts=cut_values)
+            written = chart_rows.draw_rows(con, result.table, out, where=where, cuts=cut_values,
+                                           grid=grid)
         finally:
             con.close()
         for path in written:

@@ -6,14 +6,14 @@ from pathlib import Path
 
 import duckdb
 
-from . import chart_rows, queries, runner, text_format
+from . import chart_rows, demo_history, queries, runner, text_format
 
 SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals")
 BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more",
                 "reach_now", "reach_if_won", "reach_if_lost", "swing", "win_prob",
                 "below_floor_stated", "below_floor_calibrated", "stretch_or_more_stated",
                 "stretch_or_more_calibrated")
-MONEY_COLUMNS = ("expected_value", "floor", "target", "stretch", "rounding", "sd",
+MONEY_COLUMNS = ("expected_value", "floor", "target", "stretch", "sd",
                  "p10", "p50", "p90", "cut", "amount", "expected_stated", "expected_calibrated")
 
 
@@ -42,6 +42,7 @@ def _section(con, name: str, title: str, columns: list[str] | None = None,
         rows = [[r[i] for i in keep] for r in rows]
     formats = {c: text_format.pct for c in BAND_COLUMNS}
     formats.update({c: text_format.money for c in MONEY_COLUMNS})
+    formats["odds_error"] = text_format.accuracy
     source = query.path.relative_to(queries.PACKAGE_ROOT) if query.path.is_relative_to(
         queries.PACKAGE_ROOT) else query.path
     return (f"{title}\n(from {source}: {query.description})\n\n"
@@ -69,11 +70,21 @@ def write_reliability_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Pa
     return chart_rows.draw_rows(con, result.table, out_dir / "demo-reliability.svg")[0]
 
 
+def write_history_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
+    """Six weeks of nightly snapshots into band_history, and one owner's odds over them
+    (sql/odds_history.sql)."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    demo_history.write_weekly_snapshots(con)
+    result = runner.run_query(con, queries.find("odds_history"), {"owner": SWING_OWNER})
+    return chart_rows.draw_rows(con, result.table, out_dir / "demo-odds-history.svg")[0]
+
+
 def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str:
     """Load the seeds into ``con``, write the demo chart into ``out_dir``, return the report."""
     load_seeds(con)
     chart_path = write_chart(con, out_dir or Path("out"))
     reliability_path = write_reliability_chart(con, out_dir or Path("out"))
+    history_path = write_history_chart(con, out_dir or Path("out"))
     counts = con.execute(
         "SELECT count(*), count(DISTINCT owner_id), count(DISTINCT region) FROM pipeline").fetchall()[0]
     owner, owner_name = con.execute(
@@ -85,7 +96,7 @@ def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str
         _section(con, "owner_band_odds",
                  "Per-owner odds of landing in each quota band (one GROUP BY query with band_odds)",
                  ["owner_name", "region", "deals", "expected_value", "target", "below_floor",
-                  "floor_to_target", "target_to_stretch", "stretch_or_more", "rounding"]),
+                  "floor_to_target", "target_to_stretch", "stretch_or_more", "odds_error"]),
         "",
         _section(con, "region_rollup", "Region and company roll-up of the owner outcomes"),
         "",
@@ -106,16 +117,19 @@ def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str
         "(from sql/region_outcomes.sql, drawn by 'sqlrisk chart region_outcomes')",
         f"Reliability diagram of the closed deals' stated probabilities: {reliability_path}",
         "(from sql/reliability_table.sql, drawn by 'sqlrisk chart reliability_table')",
+        f"How {owner_name}'s odds moved over six weekly snapshots: {history_path}",
+        "(nightly_snapshot run on each week of seeds/pipeline_weeks.csv into band_history, then",
+        f"'sqlrisk chart odds_history -p owner={owner}')",
         "",
         "How to read this: expected_value is the weighted sum SUM(amount * win_prob); the band",
         "columns are the probabilities of the won total landing in each band, with the stated win",
-        "probabilities taken at face value and deals independent. They are computed on a lattice",
-        "of totals: 'rounding' is a worst-case bound (in currency) on how far a lattice total may",
-        "sit from the true one, and 0 when the odds are exact to 1e-12; on the benchmark groups the",
-        "band probabilities were within 1e-3 of exact ones. reach_if_won / reach_if_lost are the",
-        "chance of reaching the cut with that deal won / lost; swing is their gap. Calibrated odds",
-        "replace each stated probability by the win rate closed deals with that stated probability",
-        "and stage actually had (isotonic regression); they assume the future closes like the past.",
+        "probabilities taken at face value and deals independent. odds_error says how exact the",
+        "band odds are, in probability: 'exact', or '+/-0.02 pts' for odds within 0.02 percentage",
+        "points of the true ones (large groups are read off a lattice of totals). reach_if_won and",
+        "reach_if_lost are the chance of reaching the cut with that deal won / lost; swing is their",
+        "gap. Calibrated odds replace each stated probability by the win rate closed deals with",
+        "that stated probability and stage actually had (isotonic regression); they assume the",
+        "future closes like the past.",
         "The odds estimate; they do not decide anyone's pay or job.",
     ]
     return "\n".join(parts)

@@ -10,16 +10,16 @@ from __future__ import annotations
 
 import xml.etree.ElementTree as ET
 
-import pytest
 from typer.testing import CliRunner
 
+from chart_checks import collisions, svg_ids, svg_texts
 from conftest import ROOT, assert_png, run_saved
+from sqlrisk import chart_reliability
 from sqlrisk.cli import app
 
 SEEDS = ROOT / "seeds"
 cli = CliRunner()
 SOURCE = ["--source", f"closed_deals={SEEDS / 'closed_deals.csv'}"]
-NS = {"s": "http://www.w3.org/2000/svg"}
 
 
 def test_chart_draws_a_reliability_diagram_as_svg(demo_con, tmp_path):
@@ -29,24 +29,29 @@ def test_chart_draws_a_reliability_diagram_as_svg(demo_con, tmp_path):
     tree = ET.parse(out)  # valid XML
     assert tree.getroot().tag == "{http://www.w3.org/2000/svg}svg"
     table = run_saved(demo_con, "reliability_table")
-    points = tree.findall(".//s:circle[@class='point']", NS)
-    labels = [t.text for t in tree.findall(".//s:text[@class='deals']", NS)]
-    assert len(points) == len(table) == 10
-    assert labels == [f"{r['deals']:,}" for r in table]
-    assert len(tree.findall(".//s:line[@class='interval']", NS)) == 10
-    diagonal = tree.find(".//s:line[@class='diagonal']", NS)
-    frame = tree.find(".//s:rect[@class='axis']", NS)
-    left, top = float(frame.get("x")), float(frame.get("y"))
-    side = float(frame.get("width"))
-    assert (float(diagonal.get("x1")), float(diagonal.get("y1"))) == (left, top + side)
-    assert (float(diagonal.get("x2")), float(diagonal.get("y2"))) == (left + side, top)
-    for circle, r in zip(points, table):  # each bin sits at (stated_mean, observed_rate)
-        assert float(circle.get("cx")) == pytest.approx(left + r["stated_mean"] * side, abs=0.06)
-        assert float(circle.get("cy")) == pytest.approx(top + (1 - r["observed_rate"]) * side,
-                                                        abs=0.06)
-    radii = [float(c.get("r")) for c in points]
+    ids, texts = svg_ids(out), svg_texts(out)
+    assert {f"point-{k}" for k in range(1, 11)} <= ids and "point-11" not in ids
+    assert {f"interval-{k}" for k in range(1, 11)} <= ids and "diagonal" in ids
+    assert [texts[f"deals-{k}"] for k in range(1, 11)] == [f"{r['deals']:,}" for r in table]
+
+
+def test_each_bin_sits_at_its_stated_mean_and_observed_rate(demo_con):
+    table = run_saved(demo_con, "reliability_table")
+    chart = chart_reliability.ReliabilityChart(
+        "bins", [(r["stated_mean"], r["observed_rate"], r["deals"]) for r in table],
+        [(r["wilson_lo"], r["wilson_hi"]) for r in table])
+    drawn = chart_reliability.reliability_figure(chart)
+    lines = {ln.get_gid(): ln for ax in drawn.fig.axes for ln in ax.lines}
+    assert list(lines["diagonal"].get_xdata()) == [0, 1] == list(lines["diagonal"].get_ydata())
+    sizes = []
+    for k, r in enumerate(table, start=1):
+        point = lines[f"point-{k}"]
+        assert (point.get_xdata()[0], point.get_ydata()[0]) == (r["stated_mean"], r["observed_rate"])
+        assert list(lines[f"interval-{k}"].get_ydata()) == [r["wilson_lo"], r["wilson_hi"]]
+        sizes.append(point.get_markersize())
     deals = [r["deals"] for r in table]
-    assert radii.index(max(radii)) == deals.index(max(deals))  # the biggest bin, biggest circle
+    assert sizes.index(max(sizes)) == deals.index(max(deals))  # the biggest bin, biggest circle
+    assert collisions(drawn.boxes, []) == []
 
 
 def test_chart_draws_a_reliability_diagram_as_png_and_skips_empty_bins(tmp_path):
@@ -59,7 +64,8 @@ def test_chart_draws_a_reliability_diagram_as_png_and_skips_empty_bins(tmp_path)
     assert cli.invoke(app, ["chart", "reliability_table", *SOURCE, "-p", "bins=100",
                             "--output", str(svg)]).exit_code == 0
     # 100 bins, of which those without deals (e.g. 0.98-0.99) are not drawn
-    assert 50 < len(ET.parse(svg).findall(".//s:circle[@class='point']", NS)) < 100
+    points = [i for i in svg_ids(svg) if i.startswith("point-")]
+    assert 50 < len(points) < 100
 
 
 def test_chart_one_diagram_per_label(tmp_path):
@@ -72,7 +78,7 @@ def test_chart_one_diagram_per_label(tmp_path):
                               "--where", "stage IN ('scout', 'terms')"])
     assert result.exit_code == 0, result.output
     files = sorted(tmp_path.glob("s-*.svg"))
-    titles = {ET.parse(f).find(".//s:text[@class='title']", NS).text for f in files}
+    titles = {svg_texts(f)["title"] for f in files}
     assert titles == {"scout", "terms"}
 
 

@@ -8,15 +8,13 @@ import signal
 import subprocess
 import sys
 import time
-import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import duckdb
 import pytest
 from typer.testing import CliRunner
 
-import sqlrisk
-from conftest import ROOT, assert_png
+from conftest import ROOT
 from sqlrisk import queries
 from sqlrisk.cli import app
 
@@ -148,80 +146,3 @@ def test_kill_during_into_leaves_the_table_unchanged(demo_db, tmp_path):
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait()
     assert rows(demo_db, "SELECT k, v FROM slow_results") == [("before", 0.0)]
-
-
-def test_chart_writes_valid_svg_with_cut_lines_and_band_labels(demo_db, tmp_path):
-    out = tmp_path / "tide.svg"
-    result = invoke("chart", "region_outcomes", "--db", demo_db, "--where",
-                    "region = 'Tidewater Bay'", "--output", str(out))
-    assert result.exit_code == 0, result.output
-    tree = ET.parse(out)
-    ns = {"s": "http://www.w3.org/2000/svg"}
-    cuts = tree.findall(".//s:line[@class='cut']", ns)
-    bands = [t.text for t in tree.findall(".//s:text[@class='band']", ns)]
-    assert len(cuts) == 3 and len(bands) == 4
-    assert all(b.endswith("%") for b in bands)
-    assert tree.findall(".//s:line[@class='mean']", ns)
-    assert tree.find(".//s:text[@class='title']", ns).text == "Tidewater Bay"
-
-
-def test_chart_png_and_one_file_per_row(demo_db, tmp_path):
-    result = invoke("chart", "region_outcomes", "--db", demo_db, "--output", str(tmp_path / "r.png"))
-    assert result.exit_code == 0, result.output
-    files = sorted(tmp_path.glob("r-*.png"))
-    assert len(files) == 7
-    for f in files:
-        assert_png(f)
-
-
-def test_chart_needs_an_outcome_column(demo_db, tmp_path):
-    result = invoke("chart", "owner_quantiles", "--db", demo_db, "--output", str(tmp_path / "x.svg"))
-    assert result.exit_code == 1 and "no outcome column" in result.output
-
-
-def test_chart_files_are_named_after_the_rows_label(demo_db, tmp_path):
-    result = invoke("chart", "region_outcomes", "--db", demo_db, "--output", str(tmp_path / "r.svg"))
-    assert result.exit_code == 0, result.output
-    regions = [r[0] for r in rows(demo_db, "SELECT DISTINCT region FROM owners ORDER BY 1")]
-    expected = {"r-" + "-".join(region.lower().split()) + ".svg" for region in regions}
-    assert {p.name for p in tmp_path.glob("r-*.svg")} == expected  # never r-1.svg, r-2.svg
-
-
-def test_chart_takes_cuts_from_floor_target_and_stretch_columns(tmp_path):
-    query = tmp_path / "q.sql"
-    query.write_text("-- Cuts as columns.\nSELECT 'x' AS who, 50.0 AS floor, NULL::DOUBLE AS target,"
-                     " 120.0 AS stretch, outcome_dist(t, 0.5) AS outcome FROM range(1, 20) r(t)\n")
-    result = invoke("chart", str(query), "--output", str(tmp_path / "q.svg"))
-    assert result.exit_code == 0, result.output
-    tree = ET.parse(tmp_path / "q.svg")
-    ns = {"s": "http://www.w3.org/2000/svg"}
-    assert len(tree.findall(".//s:line[@class='cut']", ns)) == 2  # floor and stretch; no target
-    assert len(tree.findall(".//s:text[@class='band']", ns)) == 3
-
-
-def test_chart_states_accuracy_in_probability_not_currency(demo_db, tmp_path):
-    result = invoke("chart", "region_outcomes", "--db", demo_db, "--output", str(tmp_path / "r.svg"))
-    assert result.exit_code == 0, result.output
-    ns = {"s": "http://www.w3.org/2000/svg"}
-    con = duckdb.connect(demo_db, read_only=True)
-    sqlrisk.register(con)
-    try:  # rule (README "outcome_error"): the accuracy a reader of odds reads, in probability
-        errors = dict(con.execute(
-            "SELECT region, outcome_error(outcome_dist(amount, win_prob)) FROM pipeline "
-            "GROUP BY region").fetchall())
-    finally:
-        con.close()
-    for path in tmp_path.glob("r-*.svg"):
-        note = ET.parse(path).find(".//s:text[@class='note']", ns).text
-        region = ET.parse(path).find(".//s:text[@class='title']", ns).text
-        assert note == f"Odds within +/-{100 * errors[region]:.2g} percentage points.", note
-        assert "rounding" not in note and "within 0" not in note
-
-
-def test_chart_of_an_exact_outcome_says_exact(tmp_path):
-    query = tmp_path / "q.sql"
-    query.write_text("-- Exact.\nSELECT 'x' AS who, outcome_dist(t, 0.5) AS outcome "
-                     "FROM range(1, 20) r(t)\n")
-    assert invoke("chart", str(query), "--output", str(tmp_path / "q.svg")).exit_code == 0
-    ns = {"s": "http://www.w3.org/2000/svg"}
-    assert ET.parse(tmp_path / "q.svg").find(".//s:text[@class='note']", ns).text == "Exact odds."
