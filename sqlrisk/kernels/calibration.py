@@ -26,7 +26,6 @@ fixed order give the same last bits every time.
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import isotonic_regression
 
 
 def group_of_rows(offsets: np.ndarray) -> np.ndarray:
@@ -91,6 +90,10 @@ def fit_maps(prob: np.ndarray, won: np.ndarray, offsets: np.ndarray):
     >>> b.tolist(), r.tolist(), n.tolist()
     ([0.2, 0.4, 0.6], [0.0, 0.5, 0.5], [3])
     """
+    # imported here: scipy.optimize costs ~0.35 s, paid by every process that imports sqlrisk
+    # (every dbt invocation) whether or not it fits a map
+    from scipy.optimize import isotonic_regression
+
     distinct, deals, wins, run_offsets = pool(*canonical(prob, won, offsets), offsets)
     rate = np.zeros(len(distinct))
     for g in np.flatnonzero(np.diff(run_offsets) > 0):
