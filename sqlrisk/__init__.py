@@ -12,10 +12,19 @@ from .adapters.sql_types import OUTCOME_SQL
 
 __version__ = "0.1.0"
 
+
+def draw_outcome(outcome: dict, cuts=None, title: str = "outcome", path=None) -> str:
+    """One stored outcome drawn as sqlrisk's outcome chart: the SVG text (and ``path``
+    written, .svg or .png, when given); see ``sqlrisk.chart_rows.draw_outcome``."""
+    from .chart_rows import draw_outcome as draw
+
+    return draw(outcome, cuts, title, path)
+
 __all__ = [
     "connect",
     "register",
     "register_macros",
+    "draw_outcome",
     "OUTCOME_SQL",
     "SqlriskError",
     "InputDataError",

@@ -20,7 +20,7 @@ from . import chart_drawing as drawing
 from . import chart_history
 from .chart_reliability import draw_reliability, is_reliability_table, RELIABILITY_COLUMNS
 from .chart_files import label_column, named_file, note_for as _note, quote as _q
-from .chart_style import save
+from .chart_style import DPI, pyplot, save
 from .kernels.readout import is_smooth
 from .adapters.sql_types import OUTCOME_FIELDS, OUTCOME_SQL
 from .errors import ParameterError
@@ -217,3 +217,41 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
         path = named_file(out, spec.title, i, len(charts), taken)
         written.append(save(drawing.outcome_figure(spec).fig, path))
     return written
+
+
+def draw_outcome(outcome: dict, cuts=None, title: str = "outcome", path=None) -> str:
+    """One outcome (the dict DuckDB returns for an outcome struct) as the exceedance chart,
+    for a notebook: returns the SVG text and, given ``path``, also writes it (.svg or .png).
+
+    ``cuts``: numbers, ``(name, value)`` pairs or a ``{name: value}`` dict.
+
+    >>> import sqlrisk
+    >>> con = sqlrisk.connect()
+    >>> o = con.sql("SELECT outcome_dist(a, 0.5) FROM (VALUES (6.0), (5.0)) t(a)").fetchall()[0][0]
+    >>> draw_outcome(o, {"target": 10}).startswith("<?xml")
+    True
+    """
+    import io
+
+    from .adapters.registry import connect
+
+    if isinstance(cuts, dict):
+        cuts = list(cuts.items())
+    named = None if cuts is None else [c if isinstance(c, tuple) else (None, float(c)) for c in cuts]
+    con = connect()
+    try:
+        table = con.sql(f"SELECT ?::VARCHAR AS label, ?::{OUTCOME_SQL} AS outcome",
+                        params=[title, outcome]).to_arrow_table()
+        chart = outcome_charts(con, table, cuts=named)[0]
+    finally:
+        con.close()
+    fig = drawing.outcome_figure(chart).fig
+    png = path is not None and Path(path).suffix.lower() == ".png"
+    if png:
+        fig.savefig(path, dpi=DPI, metadata={"Software": None})
+    buffer = io.StringIO()
+    fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})
+    pyplot()[1].close(fig)
+    if path is not None and not png:
+        Path(path).write_text(buffer.getvalue())
+    return buffer.getvalue()
