@@ -25,10 +25,14 @@ from __future__ import annotations
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from . import calibration_udfs as calibration
-from . import deal_udfs as deals
-from . import outcome_udfs as outcomes
-from . import simulation_udfs as simulation
+from .lazy_bodies import Later
+
+# The bodies' modules (and numba, SciPy behind them) are imported when a function first
+# runs, not when sqlrisk is imported (a dbt run or `sqlrisk --help` pays nothing for them).
+calibration = Later("sqlrisk.adapters.calibration_udfs")
+deals = Later("sqlrisk.adapters.deal_udfs")
+outcomes = Later("sqlrisk.adapters.outcome_udfs")
+simulation = Later("sqlrisk.adapters.simulation_udfs")
 from .sql_types import (HISTOGRAM_SQL, INTERVAL_SQL, MAP_SQL, OUTCOME_SQL, PARTS_SQL,
                         SWING_FIELDS, SWING_SQL)
 

@@ -42,7 +42,8 @@ def register_udfs(con: duckdb.DuckDBPyConnection) -> None:
                 con.remove_function(f.udf_name)
             except duckdb.InvalidInputException:
                 continue  # registered by another connection to the same database
-        con.create_function(f.udf_name, f.body, [sql_type(p) for p in f.udf_params()],
+        params = [sql_type(p) for p in f.udf_params()]
+        con.create_function(f.udf_name, f.body.bound(len(params)), params,
                             sql_type(f.returns), type="arrow", null_handling="special")
 
 
