@@ -19,7 +19,7 @@ import duckdb
 import numpy as np
 import pyarrow as pa
 
-from .chart_drawing import Drawn, Page, grid_page, swatch
+from .chart_drawing import Drawn, Page, band_names, grid_page, swatch
 from .chart_files import accuracy_text, label_column, named_file, quote
 from .chart_style import (DPI, INK, QUIET, band_colours, percent_ticks, pyplot,
                           quiet_frame, save)
@@ -105,9 +105,7 @@ def _row_bands(row, has_list, band_cols, cuts) -> dict[str, float]:
         present = [c for c, v in zip(cuts, cut_values) if v is not None]
         if len(present) + 1 != len(row[2]):
             present = [f"cut {k + 1}" for k in range(len(row[2]) - 1)]
-        names = ([f"below {present[0]}"] + [f"{a} to {b}" for a, b in zip(present, present[1:])]
-                 + [f"{present[-1]} or more"]) if present else ["every total"]
-        return dict(zip(names, row[2]))
+        return dict(zip(band_names(present), row[2]))
     out = {BAND_COLUMNS[c]: v for c, v in zip(band_cols, values) if v is not None}
     rest = 1.0 - sum(out.values())
     if out and rest > 1e-9:

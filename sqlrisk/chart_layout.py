@@ -6,7 +6,7 @@ and the tests check the same boxes (and the boxes the renderer actually drew).
 
 The cut labels of an exceedance curve P(total >= x) have a free corner by construction:
 the curve never rises, so above and to the right of a point on it lies only empty plot
-(and below and to the left, only area under it). ``place_labels`` tries those corners
+(and below and to the left, only area under it). ``place_one`` tries those corners
 first, then further along the same diagonal, so labels stack instead of colliding.
 """
 
@@ -71,26 +71,16 @@ def hits_line(box: Box, xs, ys) -> bool:
     return bool((alive & (t0 <= t1)).any())
 
 
-def place_labels(anchors: list[tuple[float, float]], sizes: list[tuple[float, float]],
-                 lines: list[tuple[list[float], list[float]]], frame: Box,
-                 fixed: list[Box] = (), gap: float = 6.0, pad: float = 2.0) -> list[Box]:
-    """A box per anchor, near it, off every polyline in ``lines``, every box in ``fixed``
-    and every box placed before it, and inside ``frame``.
-
-    Candidates, nearest first: the four corners of the anchor (upper-right and lower-left
-    first: they are free of a falling curve), stepped further out until one is free.
-    When none is free the least crowded candidate is taken (never seen on sqlrisk's own
-    charts; ``tests/test_chart_layout.py`` checks the demo's).
-    """
-    placed: list[Box] = []
-    for anchor, size in zip(anchors, sizes):
-        placed.append(place_one(anchor, size, lines, frame, [*placed, *fixed], gap, pad)[0])
-    return placed
-
-
 def place_one(anchor: tuple[float, float], size: tuple[float, float], lines, frame: Box,
               taken: list[Box], gap: float = 6.0, pad: float = 2.0) -> tuple[Box, bool]:
-    """The nearest free box for one label (see ``place_labels``), and whether it is free."""
+    """The nearest box for one label that is off every polyline in ``lines``, off every box
+    in ``taken`` and inside ``frame``, and whether it is free of all of them.
+
+    Candidates, nearest first: the four corners of the anchor (upper-right and lower-left
+    first: they are free of a falling curve), stepped further out until one is free. When
+    none is free the least crowded candidate is returned with ``False``, and the caller
+    shortens the label (``chart_drawing._label_cuts``).
+    """
     (x, y), (w, h) = anchor, size
     best, best_cost = None, None
     for box in _candidates(x, y, w, h, gap):

@@ -20,7 +20,7 @@ from . import chart_drawing as drawing
 from . import chart_history
 from .chart_reliability import draw_reliability, is_reliability_table, RELIABILITY_COLUMNS
 from .chart_files import label_column, named_file, note_for as _note, quote as _q
-from .chart_style import DPI, pyplot, save
+from .chart_style import pyplot, save, write
 from .kernels.readout import is_smooth
 from .adapters.sql_types import OUTCOME_FIELDS, OUTCOME_SQL
 from .errors import ParameterError
@@ -246,12 +246,10 @@ def draw_outcome(outcome: dict, cuts=None, title: str = "outcome", path=None) ->
     finally:
         con.close()
     fig = drawing.outcome_figure(chart).fig
-    png = path is not None and Path(path).suffix.lower() == ".png"
-    if png:
-        fig.savefig(path, dpi=DPI, metadata={"Software": None})
     buffer = io.StringIO()
-    fig.savefig(buffer, format="svg", metadata={"Date": None, "Creator": None})
-    pyplot()[1].close(fig)
-    if path is not None and not png:
-        Path(path).write_text(buffer.getvalue())
+    write(fig, buffer, "svg")
+    if path is not None:
+        save(fig, Path(path))  # closes the figure
+    else:
+        pyplot()[1].close(fig)
     return buffer.getvalue()

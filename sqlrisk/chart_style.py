@@ -72,14 +72,19 @@ def pyplot():
     return matplotlib, plt
 
 
-def save(fig, path: Path) -> Path:
-    """Write ``fig`` as SVG or PNG (by the suffix), without timestamps, and close it."""
-    _, plt = pyplot()
-    if path.suffix.lower() == ".png":
-        fig.savefig(path, dpi=DPI, metadata={"Software": None})
+def write(fig, target, fmt: str) -> None:
+    """Write ``fig`` to a path or file object as ``fmt`` ('svg' or 'png'), without
+    timestamps, so the same figure gives the same bytes."""
+    if fmt == "png":
+        fig.savefig(target, format="png", dpi=DPI, metadata={"Software": None})
     else:
-        fig.savefig(path, format="svg", metadata={"Date": None, "Creator": None})
-    plt.close(fig)
+        fig.savefig(target, format="svg", metadata={"Date": None, "Creator": None})
+
+
+def save(fig, path: Path) -> Path:
+    """Write ``fig`` as SVG or PNG (by the suffix) and close it."""
+    write(fig, path, "png" if Path(path).suffix.lower() == ".png" else "svg")
+    pyplot()[1].close(fig)
     return path
 
 

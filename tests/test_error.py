@@ -46,19 +46,6 @@ class Case:
     outcome: dict | None = None
 
 
-def _shape(rng, n, unit, shape):
-    units, probs = acc.random_group(rng, n, unit)
-    if shape == "dominant":
-        units[0] = abs(units[0]) * int(rng.choice([10, 100, 1000, 10_000]))
-    elif shape == "credit notes":
-        units[rng.uniform(size=n) < 0.4] *= -1
-    elif shape == "stages":
-        probs = rng.choice([0.1, 0.25, 0.5, 0.75, 0.9], n)
-    elif shape == "near certain":
-        probs = rng.choice([0.02, 0.05, 0.5, 0.95, 0.98], n)
-    return units, probs
-
-
 def _reference(units, probs, unit, rng):
     """``(cdf, cuts, slack)``: enumeration up to 20 deals, the exact unit lattice for
     whole amounts, and for 100 or more deals in cents a lattice whose step is 1e-4 of
@@ -123,7 +110,7 @@ def build_corpus(con) -> list[Case]:
         unit = UNITS[(i // len(sizes)) % 3]
         if unit < 1 and 20 < n < 100:
             unit = 10.0  # no reference in cents fits between 20 and 100 deals (see _reference)
-        units, probs = _shape(rng, n, unit, shapes[i % len(shapes)])
+        units, probs = acc.shaped_group(rng, n, unit, shapes[i % len(shapes)])
         direct.append((units, probs, unit))
     for n, unit, scale in ((2_000, 100.0, 1.0), (6_000, 100.0, 0.2), (20_000, 100.0, 0.05)):
         units, probs = acc.random_group(rng, n, unit)
@@ -144,7 +131,8 @@ def build_corpus(con) -> list[Case]:
             sizes_i = rng.integers(2, 7, int(rng.integers(2, 4)))
         else:
             sizes_i = rng.integers(3, 80, int(rng.integers(2, 7)))
-        groups = [_shape(rng, int(s), unit, shapes[(i + j) % 5]) for j, s in enumerate(sizes_i)]
+        groups = [acc.shaped_group(rng, int(s), unit, shapes[(i + j) % 5])
+                  for j, s in enumerate(sizes_i)]
         parts.append((groups, unit))
     flat = [(u, p, unit) for groups, unit in parts for u, p in groups]
     _sql_table(con, "parts", flat)
@@ -170,7 +158,7 @@ def build_corpus(con) -> list[Case]:
     corr = []
     for i in range(24):
         n = [4, 12, 30, 60][i % 4]
-        units, probs = _shape(rng, n, 100.0, ["plain", "credit notes", "stages",
+        units, probs = acc.shaped_group(rng, n, 100.0, ["plain", "credit notes", "stages",
                                               "near certain"][i % 4])
         corr.append((units, probs, 100.0, [0.05, 0.15, 0.3][i % 3]))
     _sql_table(con, "corr", [c[:3] for c in corr])

@@ -38,21 +38,6 @@ CUTS = 1_500
 HALVES_CUTS = 250
 
 
-def _shape(rng, n, unit, shape):
-    units, probs = acc.random_group(rng, n, unit)
-    if shape == "dominant":  # one deal 10 to 1,000 times the others
-        units[0] = abs(units[0]) * int(rng.choice([10, 100, 1000]))
-    elif shape == "credit notes":
-        units[rng.uniform(size=n) < 0.4] *= -1
-    elif shape == "stages":
-        probs = rng.choice([0.1, 0.25, 0.5, 0.75, 0.9], n)
-    elif shape == "near certain":
-        probs = rng.choice([0.02, 0.05, 0.5, 0.95, 0.98], n)
-    elif shape == "sure things":  # lumpy at any size: the likeliest scenario carries >= 1e-4
-        probs = rng.choice([0.01, 0.02, 0.97, 0.98, 0.99], n)
-    return units, probs
-
-
 def _atom_cuts(values, mass, rng):
     """Scenario totals (the heaviest and some drawn by mass) and midpoints between neighbours."""
     if len(values) > CUTS:
@@ -103,7 +88,7 @@ def _groups(rng):
             unit = 10.0  # no reference in cents fits between 31 and 99 deals
         if unit < 1 and n >= 100 and shape == "sure things":
             unit = 100.0  # the split lattice blurs heavy scenarios: no reference for these
-        units, probs = _shape(rng, n, unit, shape)
+        units, probs = acc.shaped_group(rng, n, unit, shape, dominant=(10, 100, 1000))
         out.append((units, probs, unit, shape))
     return out
 

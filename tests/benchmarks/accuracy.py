@@ -49,6 +49,25 @@ def random_group(rng, n: int, unit: float):
     return units, probs
 
 
+def shaped_group(rng, n: int, unit: float, shape: str,
+                 dominant: tuple[int, ...] = (10, 100, 1000, 10_000)):
+    """``random_group`` bent into a shape that is hard to read: one deal ``dominant`` times
+    the others, credit notes, stage probabilities, near-certain deals, or "sure things"
+    (lumpy at any size: the likeliest scenario carries at least 1e-4); "plain" as drawn."""
+    units, probs = random_group(rng, n, unit)
+    if shape == "dominant":
+        units[0] = abs(units[0]) * int(rng.choice(list(dominant)))
+    elif shape == "credit notes":
+        units[rng.uniform(size=n) < 0.4] *= -1
+    elif shape == "stages":
+        probs = rng.choice([0.1, 0.25, 0.5, 0.75, 0.9], n)
+    elif shape == "near certain":
+        probs = rng.choice([0.02, 0.05, 0.5, 0.95, 0.98], n)
+    elif shape == "sure things":
+        probs = rng.choice([0.01, 0.02, 0.97, 0.98, 0.99], n)
+    return units, probs
+
+
 def reference(units, probs, unit: float, rng):
     """``(cdf, cuts)``: a function P(S < c) of cuts in units, and the cuts to test
     (scenario totals and midpoints, in units)."""
