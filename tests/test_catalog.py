@@ -24,6 +24,7 @@ SAMPLES = {
     "low": "NULL", "high": "NULL", "bins": "5", "level": "0.9", "successes": "3",
     "o": f"({OUTCOME_LITERAL})", "o1": f"({OUTCOME_LITERAL})", "o2": f"({OUTCOME_LITERAL})",
     "map": "{'prob': [0.2, 0.8], 'rate': [0.1, 0.9]}",
+    "actual": "120.0", "total": "120.0", "bands": "[0.25, 0.5, 0.25]", "landed": "2",
 }
 TABLE = ("(SELECT * FROM (VALUES ('d1', 100.0, 0.5, 1, 1), ('d2', 100.0, 0.5, 0, 2), "
          "('d3', 50.0, 0.25, 1, 3)) v(deal_id, amount, prob, won, k)) AS t")

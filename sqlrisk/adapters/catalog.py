@@ -33,6 +33,7 @@ calibration = Later("sqlrisk.adapters.calibration_udfs")
 deals = Later("sqlrisk.adapters.deal_udfs")
 outcomes = Later("sqlrisk.adapters.outcome_udfs")
 simulation = Later("sqlrisk.adapters.simulation_udfs")
+scoring = Later("sqlrisk.adapters.scoring_udfs")
 from .sql_types import (HISTOGRAM_SQL, INTERVAL_SQL, MAP_SQL, OUTCOME_SQL, PARTS_SQL,
                         SWING_FIELDS, SWING_SQL)
 
@@ -189,6 +190,18 @@ FUNCTIONS: tuple[SqlFunction, ...] = (
                 (O, Arg("cuts", "DOUBLE[]"), Arg("level", "DOUBLE", "0.95")),
                 f"{INTERVAL_SQL}[]", simulation.outcome_bands_ci,
                 "Wilson intervals of a simulated outcome's bands"),
+    # -- scoring a forecast against what happened
+    SqlFunction("outcome_pit", "scalar", (O, Arg("actual", "DOUBLE")), "DOUBLE",
+                scoring.outcome_pit, "P(S < actual) + 0.5 P(S = actual), the PIT of the total"),
+    SqlFunction("outcome_crps", "scalar", (O, Arg("actual", "DOUBLE")), "DOUBLE",
+                scoring.outcome_crps, "the continuous ranked probability score, in currency"),
+    SqlFunction("outcome_interval", "scalar", (O, Arg("level", "DOUBLE", "0.8")), INTERVAL_SQL,
+                scoring.outcome_interval, "the central interval holding level of the total"),
+    SqlFunction("band_of", "scalar", (Arg("total", "DOUBLE"), Arg("cuts", "DOUBLE[]")),
+                "INTEGER", scoring.band_of, "the band (1 to len(cuts) + 1) a total falls in"),
+    SqlFunction("band_rps", "scalar", (Arg("bands", "DOUBLE[]"), Arg("landed", "DOUBLE")),
+                "DOUBLE", scoring.band_rps,
+                "the ranked probability score of band odds given the band that happened"),
     # -- calibration
     SqlFunction("calibration_map", "aggregate", _closed_args(), MAP_SQL,
                 calibration.calibration_map, "the isotonic calibration map of closed deals"),
