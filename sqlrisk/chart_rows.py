@@ -1,6 +1,6 @@
 """From a query result with an outcome column to chart files (and, by the result's shape,
-to the odds over time of ``chart_history`` or the reliability diagram of
-``chart_reliability``).
+to the odds over time of ``chart_history``, the reliability diagram of
+``chart_reliability`` or the backtest's PIT histograms of ``chart_backtest``).
 
 The numbers on an outcome chart come from sqlrisk's own SQL functions (``outcome_reach``
 on the curve, ``outcome_bands``, ``outcome_bands_ci``, ``outcome_quantiles``,
@@ -18,6 +18,7 @@ import pyarrow as pa
 
 from . import chart_drawing as drawing
 from . import chart_history
+from .chart_backtest import draw_backtest, is_backtest_table
 from .chart_reliability import draw_reliability, is_reliability_table, RELIABILITY_COLUMNS
 from .chart_files import label_column, named_file, note_for as _note, quote as _q
 from .chart_style import pyplot, save, write
@@ -49,7 +50,8 @@ def outcome_column(table: pa.Table) -> str:
     if column is None:
         raise ParameterError(
             "chart: the query returns no outcome column (a STRUCT like outcome_dist's), no "
-            f"reliability columns ({', '.join(RELIABILITY_COLUMNS)}) and no dated band odds "
+            f"reliability columns ({', '.join(RELIABILITY_COLUMNS)}), no backtest scores "
+            "(method, pit_counts, coverage_80) and no dated band odds "
             "(a date column with bands or below_floor ... stretch_or_more); select an outcome, "
             "e.g. outcome_dist(amount, win_prob) AS outcome (see sql/region_outcomes.sql)")
     return column
@@ -203,8 +205,12 @@ def draw_rows(con: duckdb.DuckDBPyConnection, table: pa.Table, out: Path,
 
     An outcome column gives one exceedance chart per row (``grid``: one page of panels).
     A date column with band odds, on several dates, gives the odds over time
-    (``chart_history``); the reliability table's columns a reliability diagram.
+    (``chart_history``); the reliability table's columns a reliability diagram; the
+    backtest's (method, pit_counts, coverage_80) one page of PIT histograms per method
+    (``chart_backtest``).
     """
+    if is_backtest_table(table):  # before the outcome check: the backtest has no outcome
+        return draw_backtest(con, table, out, where=where, cuts=cuts, grid=grid)
     if chart_history.is_history(table):
         return chart_history.draw(con, table, out, where=where, grid=grid)
     if find_outcome_column(table) is None and is_reliability_table(table):

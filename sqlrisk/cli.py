@@ -253,19 +253,22 @@ def chart(
     strict: bool = typer.Option(False, "--strict", help=STRICT_HELP),
 ) -> None:
     """Draw, for each row of a query that returns an outcome, the chance of reaching at least
-    each total; the odds over time for dated band odds; or a reliability diagram.
+    each total; the odds over time for dated band odds; a reliability diagram; or a
+    backtest's PIT histograms.
 
     On an outcome chart each cut is a labelled point on the curve with its reach odds, the
     bands are shaded, and a bar under the axis runs from P10 to P90. A result with a date
     column and band odds on several dates (odds_history, band_history) is drawn as the band
     odds over time. A result with columns stated_mean, observed_rate and deals is drawn as
-    a reliability diagram.
+    a reliability diagram. The backtest's result (method, pit_counts, coverage_80) is drawn
+    as one PIT histogram per method and the coverage of the 80% interval against 80%.
 
     Examples:
       sqlrisk chart region_outcomes --where "region = 'Tidewater Bay'" --output tidewater.svg
       sqlrisk chart region_outcomes --grid --output regions.png
       sqlrisk chart odds_history --db forecast.duckdb -p owner=own_032 --output own_032.svg
       sqlrisk chart reliability_table --db forecast.duckdb --output reliability.svg
+      sqlrisk chart backtest --db forecast.duckdb --output backtest.svg
     """
     if out.suffix.lower() not in (".svg", ".png"):
         raise typer.BadParameter("the picture must be a .svg or .png file", param_hint="--output")

@@ -3,7 +3,8 @@ and its PNG matches a stored reference rendering within a tolerance.
 
 The charts are drawn from fixed descriptions (no query), so a difference means the drawing
 changed. After a deliberate change of the look, look at the new pictures and store them:
-``cd tests && python test_chart_pictures.py`` rewrites ``tests/reference/*.png``. The tolerance
+``cd tests && python test_chart_pictures.py`` writes those of ``tests/reference/*.png``
+whose bytes changed (or are missing) and leaves the others untouched. The tolerance
 is matplotlib's RMS pixel difference (``matplotlib.testing.compare``): 3 of 255 lets
 anti-aliasing differences between FreeType builds pass and catches a moved label.
 """
@@ -20,7 +21,7 @@ import pytest
 from chart_checks import svg_texts
 from conftest import assert_png
 from sqlrisk import chart_drawing as drawing
-from sqlrisk import chart_history, chart_reliability
+from sqlrisk import chart_backtest, chart_history, chart_reliability
 from sqlrisk.chart_style import save
 
 REFERENCE = Path(__file__).resolve().parent / "reference"
@@ -61,6 +62,20 @@ def reliability_spec() -> chart_reliability.ReliabilityChart:
         "Invented bins.\nDashed line: observed = stated.")
 
 
+def backtest_spec() -> chart_backtest.BacktestChart:
+    counts = {"stated": [44, 27, 15, 12, 9, 10, 13, 17, 22, 31],  # invented: a U shape,
+              "calibrated": [19, 22, 18, 21, 20, 17, 23, 19, 21, 20],  # flat,
+              "stated, rho 0.15": [8, 12, 19, 27, 34, 31, 26, 20, 14, 9],  # a hump,
+              "calibrated, rho 0.15": [31, 27, 24, 22, 20, 19, 18, 15, 13, 11]}  # a slope
+    scores = [(0.64, 41250.0, 0.142), (0.795, 38900.0, 0.118), (0.93, 40110.0, 0.131),
+              (0.81, 37620.0, 0.109)]
+    return chart_backtest.BacktestChart(
+        "Backtest: won totals against their forecasts",
+        [chart_backtest.method_scores(m, c, 200, cov, crps=crps, rps=rps)
+         for (m, c), (cov, crps, rps) in zip(counts.items(), scores)],
+        "200 forecasts per method (invented)", chart_backtest.NOTE)
+
+
 PICTURES = {
     "outcome": (lambda: drawing.outcome_figure(outcome_spec()), (960, 520),
                 ["Example seller", "floor 600k", "target 1M", "stretch 1.4M", "Band odds"]),
@@ -72,6 +87,9 @@ PICTURES = {
                      ["Example seller", "floor to target"]),
     "reliability": (lambda: chart_reliability.reliability_figure(reliability_spec()), (580, 620),
                     ["Example diagram", "observed win rate"]),
+    "backtest": (lambda: chart_backtest.backtest_figure(backtest_spec()), (1145, 675),
+                 ["stated, rho 0.15", "mean CRPS 41,250 · RPS 0.142", "PIT of the won total",
+                  "64%", "93%", "U shape"]),
 }
 
 
@@ -99,9 +117,22 @@ def test_svg_decodes_and_carries_its_labels(name, tmp_path):
 
 
 def write_references() -> None:
+    """Draw every picture; write those whose bytes differ from the stored reference (or
+    that have none), leaving the others' files untouched."""
+    import io
+
+    from sqlrisk.chart_style import pyplot, write
+
     REFERENCE.mkdir(exist_ok=True)
     for name, (draw, _, _) in PICTURES.items():
-        print("wrote", save(draw().fig, REFERENCE / f"{name}.png"))
+        fig, buffer, path = draw().fig, io.BytesIO(), REFERENCE / f"{name}.png"
+        write(fig, buffer, "png")
+        pyplot()[1].close(fig)
+        if path.exists() and path.read_bytes() == buffer.getvalue():
+            print("unchanged", path)
+        else:
+            path.write_bytes(buffer.getvalue())
+            print("wrote", path)
 
 
 if __name__ == "__main__":
