@@ -3,15 +3,16 @@
 The checks read the tables a query declares (after ``inputs.prepare`` made them)
 and return one warning line each, with counts and up to five example keys:
 
-- pipeline rows skipped because amount or win_prob is NULL (the SQL functions'
-  NULL rule skips them);
-- deal_id values that appear more than once in pipeline (each row counts as a deal);
+- deal rows (pipeline, or the past quarters' past_deals) skipped because amount or
+  win_prob is NULL (the SQL functions' NULL rule skips them);
+- deal_id values that appear more than once in them (each row counts as a deal);
 - owners in pipeline with no row in quota_bands (for the ``period`` parameter when
   quota_bands has a period column); a period that no quota row has is an error;
-- win probabilities that look like percentages.
+- win probabilities that look like percentages;
+- owners and periods of past_deals with no row in past_quotas (their band scores are NULL).
 
-Two rows of quota_bands for one owner (and period) are an error: the cuts would be
-ambiguous and the owner's deals counted once per row.
+Two rows of quota_bands (or past_quotas) for one owner and period are an error: the cuts
+would be ambiguous and the owner's deals counted once per row.
 
 Each check runs only when the query declares the tables and columns it needs.
 """
@@ -22,6 +23,8 @@ from .errors import InputDataError
 from .query_header import TableRead
 
 EXAMPLES = 5
+#: Tables of deals with an amount and a win probability: today's and the past quarters'.
+DEAL_TABLES = ("pipeline", "past_deals")
 
 
 def _has(reads: dict[str, TableRead], table: str, *columns: str) -> bool:
@@ -34,42 +37,70 @@ def _examples(values) -> str:
     return f" (e.g. {shown})" if shown else ""
 
 
-def _deal_key(con, reads) -> str:
-    """The expression naming a pipeline row in examples: deal_id when it has values."""
-    if _has(reads, "pipeline", "deal_id") and con.execute(
-            "SELECT count(deal_id) FROM pipeline").fetchall()[0][0]:
+def _deal_key(con, reads, table: str) -> str:
+    """The expression naming a deal row in examples: deal_id when it has values."""
+    if _has(reads, table, "deal_id") and con.execute(
+            f"SELECT count(deal_id) FROM {table}").fetchall()[0][0]:
         return "CAST(deal_id AS VARCHAR)"
-    return "'owner ' || CAST(owner_id AS VARCHAR)" if _has(reads, "pipeline", "owner_id") \
+    return "'owner ' || CAST(owner_id AS VARCHAR)" if _has(reads, table, "owner_id") \
         else "'row'"
 
 
-def null_rows(con, reads) -> list[str]:
-    if not _has(reads, "pipeline", "amount", "win_prob"):
+def null_rows(con, reads, table: str = "pipeline") -> list[str]:
+    if not _has(reads, table, "amount", "win_prob"):
         return []
-    key = _deal_key(con, reads)
+    key = _deal_key(con, reads, table)
     where = "amount IS NULL OR win_prob IS NULL"
     count, total = con.execute(f"SELECT count(*) FILTER (WHERE {where}), count(*) "
-                               "FROM pipeline").fetchall()[0]
+                               f"FROM {table}").fetchall()[0]
     if not count:
         return []
-    keys = [r[0] for r in con.execute(f"SELECT {key} FROM pipeline WHERE {where} "
+    keys = [r[0] for r in con.execute(f"SELECT {key} FROM {table} WHERE {where} "
                                       f"LIMIT {EXAMPLES}").fetchall()]
-    return [f"pipeline: {count} of {total} rows skipped because amount or win_prob is NULL"
+    return [f"{table}: {count} of {total} rows skipped because amount or win_prob is NULL"
             f"{_examples(keys)}; fill them in or filter them out to silence this"]
 
 
-def duplicate_deals(con, reads) -> list[str]:
-    if not _has(reads, "pipeline", "deal_id"):
+def duplicate_deals(con, reads, table: str = "pipeline") -> list[str]:
+    if not _has(reads, table, "deal_id"):
         return []
-    rows = con.execute("SELECT CAST(deal_id AS VARCHAR), count(*) FROM pipeline "
-                       "WHERE deal_id IS NOT NULL GROUP BY deal_id HAVING count(*) > 1 "
-                       "ORDER BY count(*) DESC, deal_id").fetchall()
+    # past_deals holds each period's deals: a deal open in two periods is two rows
+    scope = ", period" if _has(reads, table, "period") and table != "pipeline" else ""
+    rows = con.execute(f"SELECT CAST(deal_id AS VARCHAR), count(*) FROM {table} "
+                       f"WHERE deal_id IS NOT NULL GROUP BY deal_id{scope} "
+                       "HAVING count(*) > 1 ORDER BY count(*) DESC, 1").fetchall()
     if not rows:
         return []
     extra = sum(n for _, n in rows)
-    return [f"pipeline: {len(rows)} deal_id value(s) appear more than once ({extra} rows, each "
-            f"counted as a deal){_examples([f'{k} x{n}' for k, n in rows])}; keep one row "
-            "per deal"]
+    per = " in one period" if scope else ""
+    return [f"{table}: {len(rows)} deal_id value(s) appear more than once{per} ({extra} rows, "
+            f"each counted as a deal){_examples([f'{k} x{n}' for k, n in rows])}; keep one "
+            "row per deal"]
+
+
+def past_quota_gaps(con, reads) -> list[str]:
+    """past_quotas with two rows for an owner and period (an error); owners and periods of
+    past_deals with none (a warning)."""
+    if not (_has(reads, "past_deals", "owner_id", "period")
+            and _has(reads, "past_quotas", "owner_id", "period")):
+        return []
+    doubled = [f"{o} {p} x{n}" for o, p, n in con.execute(
+        "SELECT CAST(owner_id AS VARCHAR), CAST(period AS VARCHAR), count(*) FROM past_quotas "
+        "WHERE owner_id IS NOT NULL GROUP BY owner_id, period HAVING count(*) > 1 "
+        f"ORDER BY 1, 2 LIMIT {EXAMPLES}").fetchall()]
+    if doubled:
+        raise InputDataError(f"run: past_quotas has more than one row per owner and period "
+                             f"({', '.join(doubled)}); keep one row per owner and period")
+    missing = [f"{o} {p}" for o, p in con.execute(
+        "SELECT DISTINCT CAST(d.owner_id AS VARCHAR) AS o, CAST(d.period AS VARCHAR) AS p "
+        "FROM past_deals AS d WHERE d.owner_id IS NOT NULL AND NOT EXISTS (SELECT 1 FROM "
+        "past_quotas AS q WHERE q.owner_id = d.owner_id AND q.period = d.period) "
+        "ORDER BY p, o").fetchall()]
+    if not missing:
+        return []
+    return [f"{len(missing)} owner and period pair(s) in past_deals have no row in past_quotas"
+            f"{_examples(missing)}; their band and reach scores are NULL (CRPS, PIT and "
+            "coverage still count)"]
 
 
 def _quota_scope(con, reads, values: dict) -> tuple[str, dict, str]:
@@ -121,20 +152,20 @@ def owners_without_quota(con, reads, values: dict) -> list[str]:
             f"{_examples(missing)}; they have no cuts (NULL in per-owner results, left out of summed region cuts)"]
 
 
-def percent_probabilities(con, reads) -> list[str]:
-    if not _has(reads, "pipeline", "win_prob"):
+def percent_probabilities(con, reads, table: str = "pipeline") -> list[str]:
+    if not _has(reads, table, "win_prob"):
         return []
     above, in_percent, total, top = con.execute(
         "SELECT count(*) FILTER (WHERE win_prob > 1), "
         "count(*) FILTER (WHERE win_prob > 1 AND win_prob <= 100), count(win_prob), "
-        "max(win_prob) FROM pipeline").fetchall()[0]
+        f"max(win_prob) FROM {table}").fetchall()[0]
     if not above:
         return []
     if in_percent == above and above * 2 >= total:
-        return [f"pipeline.win_prob: {above} of {total} probabilities are above 1 (largest "
+        return [f"{table}.win_prob: {above} of {total} probabilities are above 1 (largest "
                 f"{top:g}): percentages? map the column with --column "
-                "pipeline.win_prob='your_column / 100'"]
-    return [f"pipeline.win_prob: {above} of {total} probabilities are above 1 (largest "
+                f"{table}.win_prob='your_column / 100'"]
+    return [f"{table}.win_prob: {above} of {total} probabilities are above 1 (largest "
             f"{top:g}): a typo in the source?"]
 
 
@@ -144,7 +175,10 @@ def check(con, reads: list[TableRead], values: dict, absent=()) -> list[str]:
     Tables in ``absent`` (optional ones not given, read as empty) are not checked.
     """
     declared = {r.table: r for r in reads if r.table not in absent}
-    return [*null_rows(con, declared), *duplicate_deals(con, declared),
-            *owners_without_quota(con, declared, values),
-            *percent_probabilities(con, declared)]
+    per_table = [line for table in DEAL_TABLES for check in (null_rows, duplicate_deals)
+                 for line in check(con, declared, table)]
+    return [*per_table, *owners_without_quota(con, declared, values),
+            *past_quota_gaps(con, declared),
+            *(line for table in DEAL_TABLES
+              for line in percent_probabilities(con, declared, table))]
 

@@ -16,7 +16,9 @@ from collections.abc import Callable, Sequence
 import pyarrow as pa
 
 _PROBABILITY_NAME = re.compile(r"(^below_|_to_|_or_more$|^reach|^p_|bands|odds|swing|prob|"
-                               r"_rate$|^stated_mean$|^wilson_)")
+                               r"_rate$|^stated_mean$|^wilson_|^coverage)")
+#: Scores are numbers in their own units, not probabilities, even when the name says reach.
+_SCORE_NAME = re.compile(r"(brier|rps|crps|^pit)")
 
 
 def money(x) -> str:
@@ -56,7 +58,7 @@ def outcome_label(o) -> str:
 
 
 def _is_probability(name: str, values: list) -> bool:
-    if not _PROBABILITY_NAME.search(name):
+    if not _PROBABILITY_NAME.search(name) or _SCORE_NAME.search(name):
         return False
     flat = [v for x in values if x is not None for v in (x if isinstance(x, list) else [x])]
     return bool(flat) and all(isinstance(v, float) and 0.0 <= v <= 1.0 for v in flat)
