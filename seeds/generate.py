@@ -8,6 +8,9 @@ made-up B2B software company:
 * quota_bands.csv    - floor / target / stretch cut points per seller
 * closed_deals.csv   - closed deals from 2026, used for calibration
 * pipeline_weeks.csv - the open pipeline on six Mondays up to today (2026-11-30)
+* past_deals.csv     - 2026's four quarters: the deals open on each quarter's first day
+                       that were expected to close in it, and what each of them did
+* past_quotas.csv    - those quarters' floor / target / stretch per seller
 
 The company, regions, teams, product lines and every person's name are
 invented. Any resemblance to real companies or people is a coincidence.
@@ -22,6 +25,7 @@ import io
 from pathlib import Path
 
 import numpy as np
+from scipy.special import ndtri
 
 SEED = 20270101
 OUT_DIR = Path(__file__).resolve().parent
@@ -125,13 +129,18 @@ def random_dates(rng, start, days, n):
     return [(start + dt.timedelta(days=int(d))).isoformat() for d in offsets]
 
 
+def draw_open_deals(rng, owner, start, days):
+    """One owner's open deals: how many, stages, stated probabilities, amounts, close dates."""
+    n = int(rng.integers(15, 61))
+    stages, probs = draw_stage_and_prob(rng, owner, n)
+    amounts = draw_amounts(rng, n, allow_negative=True)
+    return n, stages, probs, amounts, random_dates(rng, start, days, n)
+
+
 def make_pipeline(rng, owners):
     rows = []
     for o in owners:
-        n = int(rng.integers(15, 61))
-        stages, probs = draw_stage_and_prob(rng, o, n)
-        amounts = draw_amounts(rng, n, allow_negative=True)
-        closes = random_dates(rng, Q1_START, Q1_DAYS, n)
+        n, stages, probs, amounts, closes = draw_open_deals(rng, o, Q1_START, Q1_DAYS)
         products = rng.choice(PRODUCT_LINES, size=n, p=PRODUCT_WEIGHTS)
         for s, p, a, c, pl in zip(stages, probs, amounts, closes, products):
             rows.append([None, o["owner_id"], o["region"], s, a, float(p), c, str(pl)])
@@ -142,7 +151,7 @@ def make_pipeline(rng, owners):
     return rows
 
 
-def make_quota_bands(rng, owners, pipeline):
+def make_quota_bands(rng, owners, pipeline, period="2027-Q1"):
     """Target near each owner's expected pipeline value, with spread."""
     expected = {o["owner_id"]: 0.0 for o in owners}
     for r in pipeline:
@@ -153,7 +162,7 @@ def make_quota_bands(rng, owners, pipeline):
         target = round_to(ev / np.exp(rng.normal(0.0, 0.2)), 1_000)
         floor = round_to(target * rng.uniform(0.55, 0.75), 1_000)
         stretch = round_to(target * rng.uniform(1.25, 1.55), 1_000)
-        rows.append([o["owner_id"], "2027-Q1", floor, target, stretch])
+        rows.append([o["owner_id"], period, floor, target, stretch])
     return rows
 
 
@@ -259,6 +268,59 @@ def make_pipeline_weeks(pipeline, owners):
     return [[day.isoformat(), *deal] for day, deals in zip(WEEK_DATES, weeks) for deal in deals]
 
 
+#: The past quarters draw from their own random stream, so the other seed files stay the same.
+PAST_SEED = 20260102
+PAST_QUARTERS = [("2026-Q1", dt.date(2026, 1, 1), 90), ("2026-Q2", dt.date(2026, 4, 1), 91),
+                 ("2026-Q3", dt.date(2026, 7, 1), 92), ("2026-Q4", dt.date(2026, 10, 1), 92)]
+#: The chance that a deal open on a quarter's first day slips out of it (neither won nor lost).
+SLIP = {"scout": 0.20, "scope": 0.15, "pitch": 0.10, "terms": 0.07, "handshake": 0.04}
+#: In this region a shared shock each quarter moves its deals together (one-factor Gaussian
+#: copula with correlation PAST_SHOCK_RHO); elsewhere deals are won independently.
+SHOCK_REGION = "Frostmere Heights"
+PAST_SHOCK_RHO = 0.3
+PAST_COLUMNS = ["period", "period_start", "deal_id", "owner_id", "region", "stage", "amount",
+                "win_prob", "expected_close", "result", "closed_on"]
+
+
+def copula_wins(rng, rate, shock, rho):
+    """Which deals are won: deal i when sqrt(rho) shock + sqrt(1 - rho) e_i < Phi^-1(rate_i),
+    with e_i standard normal. Each deal keeps its win rate; rho > 0 makes them win together
+    (rho = 0: independent draws)."""
+    noise = rng.standard_normal(len(rate))
+    return np.sqrt(rho) * shock + np.sqrt(1.0 - rho) * noise < ndtri(rate)
+
+
+def make_past_quarters(owners):
+    """Each 2026 quarter's open deals per owner at its first day, what they did, and quotas.
+
+    Deals are drawn like pipeline.csv's; a deal first slips out of the quarter with the
+    chance ``SLIP`` of its stage, otherwise it closes in it, won with the true win rate of
+    closed_deals (``true_win_rate``: optimistic sellers late in the cycle, each owner's
+    skill), through ``copula_wins`` with the quarter's shock in ``SHOCK_REGION``.
+    """
+    rng = np.random.default_rng(PAST_SEED)
+    deals, quotas = [], []
+    for period, start, days in PAST_QUARTERS:
+        shock = rng.standard_normal()
+        quarter = []
+        for o in owners:
+            n, stages, stated, amounts, closes = draw_open_deals(rng, o, start, days)
+            closed_on = random_dates(rng, start, days, n)
+            slipped = rng.random(n) < np.array([SLIP[s] for s in stages])
+            rho = PAST_SHOCK_RHO if o["region"] == SHOCK_REGION else 0.0
+            won = copula_wins(rng, true_win_rate(stages, stated, o), shock, rho)
+            for i in range(n):
+                result = "slipped" if slipped[i] else "won" if won[i] else "lost"
+                quarter.append([None, o["owner_id"], o["region"], stages[i], amounts[i],
+                                float(stated[i]), closes[i], result,
+                                "" if slipped[i] else closed_on[i]])
+        quotas += make_quota_bands(rng, owners, quarter, period)
+        deals += [[period, start.isoformat(), *deal] for deal in quarter]
+    for i, deal in enumerate(deals):
+        deal[2] = f"pd_{i + 1:05d}"
+    return deals, quotas
+
+
 PIPELINE_COLUMNS = ["deal_id", "owner_id", "region", "stage", "amount", "win_prob",
                     "expected_close", "product_line"]
 
@@ -271,6 +333,7 @@ def make_seed_files():
     pipeline = make_pipeline(rng, owners)
     bands = make_quota_bands(rng, owners, pipeline)
     closed = make_closed_deals(rng, owners)
+    past = make_past_quarters(owners)
     return {
         "owners.csv": (["owner_id", "owner_name", "team", "region"],
                        [[o["owner_id"], o["owner_name"], o["team"], o["region"]] for o in owners]),
@@ -281,6 +344,9 @@ def make_seed_files():
         # after the files above: its stream is its own, and it copies today's pipeline
         "pipeline_weeks.csv": (["as_of", *PIPELINE_COLUMNS],
                                make_pipeline_weeks(pipeline, owners)),
+        # their own stream too: the four quarters before the pipeline's
+        "past_deals.csv": (PAST_COLUMNS, past[0]),
+        "past_quotas.csv": (["owner_id", "period", "floor", "target", "stretch"], past[1]),
     }
 
 

@@ -94,7 +94,7 @@ def test_wheel_ships_the_code_the_saved_queries_and_the_seeds(wheel):
     assert modules <= names, sorted(modules - names)
     assert {f"sqlrisk/sql/{p.name}" for p in (ROOT / "sql").glob("*.sql")} <= names
     seeds = {f"sqlrisk/seeds/{p.name}" for p in (ROOT / "seeds").glob("*.csv")}
-    assert len(seeds) == 5 and seeds | {"sqlrisk/seeds/README.md"} <= names
+    assert len(seeds) == 7 and seeds | {"sqlrisk/seeds/README.md"} <= names
     assert all(n.startswith(("sqlrisk/", "sqlrisk-")) for n in names), sorted(names)
     metadata = next(n for n in names if n.endswith(".dist-info/METADATA"))
     assert "License-Expression: MIT" in zipfile.ZipFile(wheel).read(metadata).decode()
@@ -129,4 +129,4 @@ def test_installed_demo_runs_and_writes_its_charts(env, elsewhere):
     assert "Brindlewick Software" in proc.stdout
     assert "(from sql/owner_band_odds.sql:" in proc.stdout
     assert sorted(p.name for p in out.iterdir()) == [
-        "demo-odds-history.svg", "demo-region-chart.svg", "demo-reliability.svg"]
+        "demo-backtest.svg", "demo-odds-history.svg", "demo-region-chart.svg", "demo-reliability.svg"]
