@@ -29,8 +29,9 @@ def db_path(tmp_path):
 
 @pytest.fixture
 def demo_con(con):
-    """``con`` with the demo seeds loaded as tables pipeline, owners, quota_bands, closed_deals."""
-    for name in ("pipeline", "owners", "quota_bands", "closed_deals"):
+    """``con`` with the demo seeds loaded as tables pipeline, owners, quota_bands, closed_deals,
+    past_deals and past_quotas."""
+    for name in ("pipeline", "owners", "quota_bands", "closed_deals", "past_deals", "past_quotas"):
         con.execute(f"CREATE TABLE {name} AS SELECT * FROM read_csv(?)",
                     [str(ROOT / "seeds" / f"{name}.csv")])
     return con

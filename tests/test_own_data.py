@@ -88,7 +88,7 @@ def test_every_saved_query_declares_the_tables_it_reads(query):
     saved = queries.find(query)
     body = re.sub(r"--[^\n]*", "", saved.sql)
     named = set(re.findall(r"\b(?:FROM|JOIN)\s+([a-z_]+)\b", body))
-    ctes = set(re.findall(r"\b([a-z_]+) AS \(", body))
+    ctes = set(re.findall(r"\b([a-z_]+) AS (?:NOT )?(?:MATERIALIZED )?\(", body))
     assert saved.reads, query
     assert named - ctes - {"unnest", "range"} <= {r.table for r in saved.reads}, query
 

@@ -28,7 +28,7 @@ PARAMS_FOR_TESTS = {"as_of": "2026-11-30"}
 def demo_db(tmp_path):
     path = tmp_path / "forecast.duckdb"
     con = duckdb.connect(str(path))
-    for name in ("pipeline", "owners", "quota_bands", "closed_deals"):
+    for name in ("pipeline", "owners", "quota_bands", "closed_deals", "past_deals", "past_quotas"):
         con.execute(f"CREATE TABLE {name} AS SELECT * FROM read_csv(?)", [str(SEEDS / f"{name}.csv")])
     con.close()
     return str(path)
