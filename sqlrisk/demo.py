@@ -2,23 +2,25 @@
 
 from __future__ import annotations
 
+import textwrap
 from pathlib import Path
 
 import duckdb
 
 from . import chart_rows, demo_history, queries, runner, text_format
 
-SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals")
+SEED_TABLES = ("pipeline", "owners", "quota_bands", "closed_deals", "past_deals", "past_quotas")
 BAND_COLUMNS = ("below_floor", "floor_to_target", "target_to_stretch", "stretch_or_more",
                 "reach_now", "reach_if_won", "reach_if_lost", "swing", "win_prob",
                 "below_floor_stated", "below_floor_calibrated", "stretch_or_more_stated",
-                "stretch_or_more_calibrated")
+                "stretch_or_more_calibrated", "coverage_80")
 MONEY_COLUMNS = ("expected_value", "floor", "target", "stretch", "sd",
                  "p10", "p50", "p90", "cut", "amount", "expected_stated", "expected_calibrated")
 
 
 def load_seeds(con: duckdb.DuckDBPyConnection, directory: Path | None = None) -> None:
-    """Create one table per seed CSV (pipeline, owners, quota_bands, closed_deals)."""
+    """Create one table per seed CSV (pipeline, owners, quota_bands, closed_deals, and the
+    past quarters' past_deals and past_quotas)."""
     directory = directory or queries.seeds_dir()
     for name in SEED_TABLES:
         con.execute(f"CREATE OR REPLACE TABLE {name} AS SELECT * FROM read_csv(?)",
@@ -43,6 +45,7 @@ def _section(con, name: str, title: str, columns: list[str] | None = None,
     formats = {c: text_format.pct for c in BAND_COLUMNS}
     formats.update({c: text_format.money for c in MONEY_COLUMNS})
     formats["odds_error"] = text_format.accuracy
+    formats["crps"] = text_format.money
     source = query.path.relative_to(queries.PACKAGE_ROOT) if query.path.is_relative_to(
         queries.PACKAGE_ROOT) else query.path
     return (f"{title}\n(from {source}: {query.description})\n\n"
@@ -79,12 +82,60 @@ def write_history_chart(con: duckdb.DuckDBPyConnection, out_dir: Path) -> Path:
     return chart_rows.draw_rows(con, result.table, out_dir / "demo-odds-history.svg")[0]
 
 
+BACKTEST_COLUMNS = ["method", "forecasts", "expected", "actual", "crps", "band_rps",
+                    "reach_brier", "coverage_80", "pit"]
+
+
+def backtest_section(con: duckdb.DuckDBPyConnection, out_dir: Path) -> str:
+    """The past quarters' forecasts scored per method (sql/backtest.sql), the PIT chart, and
+    the rho the past prefers (sql/choose_correlation.sql)."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    table = runner.run_query(con, queries.find("backtest"), {}).table
+    chart = chart_rows.draw_rows(con, table, out_dir / "demo-backtest.svg")[0]
+    rows = table.to_pylist()
+    best = min(rows, key=lambda r: r["crps"])
+    rhos = runner.run_query(con, queries.find("choose_correlation"), {}).table.to_pylist()
+    overall = next(r for r in rhos if r["scope"] == "all regions")
+    regions = {r["scope"]: r["best_rho"] for r in rhos if r["scope"] != "all regions"}
+    formats = {"crps": text_format.money, "expected": text_format.money,
+               "actual": text_format.money, "coverage_80": text_format.pct,
+               "band_rps": _score, "reach_brier": _score, "pit": _score}
+    table_rows = [[r[c] for c in BACKTEST_COLUMNS] for r in rows]
+    by_region = ", ".join(f"{name} {rho:g}" for name, rho in regions.items())
+    stated = rows[0]
+    direction = "high" if stated["pit"] < 0.5 else "low"
+    return "\n".join([
+        "Were past odds right? Each 2026 quarter's forecast from its first day, per owner, "
+        "scored against what was won",
+        "(from sql/backtest.sql; lower crps, band_rps and reach_brier are better; coverage_80 "
+        "should be near 80%, pit near 0.5)",
+        "",
+        text_format.table_text(BACKTEST_COLUMNS, table_rows, formats),
+        "",
+        textwrap.fill(
+            f"The stated probabilities' 80% intervals held {stated['coverage_80']:.0%} of the "
+            f"actual totals (80% if the spreads were right), and their mean PIT is "
+            f"{stated['pit']:.2f} (0.5 if the centre were right): the forecasts ran {direction}, "
+            f"{stated['expected']:,.0f} expected per owner and quarter against "
+            f"{stated['actual']:,.0f} won. Best by mean CRPS: {best['method']}. The rho with "
+            f"the lowest CRPS (sql/choose_correlation.sql): {overall['best_rho']:g} over all "
+            f"regions; by region: {by_region}.", width=96),
+        f"PIT histograms and interval coverage per method: {chart}",
+        "(drawn by 'sqlrisk chart backtest')",
+    ])
+
+
+def _score(x) -> str:
+    return "" if x is None else f"{x:.3f}"
+
+
 def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str:
     """Load the seeds into ``con``, write the demo chart into ``out_dir``, return the report."""
     load_seeds(con)
     chart_path = write_chart(con, out_dir or Path("out"))
     reliability_path = write_reliability_chart(con, out_dir or Path("out"))
     history_path = write_history_chart(con, out_dir or Path("out"))
+    backtest = backtest_section(con, out_dir or Path("out"))
     counts = con.execute(
         "SELECT count(*), count(DISTINCT owner_id), count(DISTINCT region) FROM pipeline").fetchall()[0]
     owner, owner_name = con.execute(
@@ -130,6 +181,9 @@ def run_demo(con: duckdb.DuckDBPyConnection, out_dir: Path | None = None) -> str
         "gap. Calibrated odds replace each stated probability by the win rate closed deals with",
         "that stated probability and stage actually had (isotonic regression); they assume the",
         "future closes like the past.",
+        "",
+        backtest,
+        "",
         "The odds estimate; they do not decide anyone's pay or job.",
     ]
     return "\n".join(parts)
