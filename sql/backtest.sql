@@ -57,7 +57,7 @@ forecasts AS MATERIALIZED (
     SELECT m.k, m.method, d.period, d.owner_id, any_value(d.region) AS region,
            count(d.amount * d.stated) AS deals,
            count(*) FILTER (WHERE m.calibrated AND d.uncalibrated) AS uncalibrated_deals,
-           sum(d.won_amount) AS actual,
+           list_sum(list(d.won_amount ORDER BY d.won_amount)) AS actual,
            outcome_dist(d.amount, CASE WHEN m.calibrated THEN d.calibrated ELSE d.stated END,
                         correlation := m.rho) AS o
     FROM deals AS d
@@ -100,9 +100,16 @@ per_forecast AS MATERIALIZED (
 summary AS (
     SELECT k, method, 'all' AS period, 'all' AS owner_id, sum(deals)::BIGINT AS deals,
            sum(uncalibrated_deals)::BIGINT AS uncalibrated_deals,
-           avg(expected) AS expected, avg(actual) AS actual, avg(pit) AS pit,
-           avg(crps) AS crps, avg(band_rps) AS band_rps, avg(reach_brier) AS reach_brier,
-           avg(coverage_80) AS coverage_80, count(*) AS forecasts,
+           -- means over lists in a fixed order: the same data gives the same bits on any
+           -- number of threads (avg() adds in the order the threads finish)
+           list_avg(list(expected ORDER BY period, owner_id)) AS expected,
+           list_avg(list(actual ORDER BY period, owner_id)) AS actual,
+           list_avg(list(pit ORDER BY period, owner_id)) AS pit,
+           list_avg(list(crps ORDER BY period, owner_id)) AS crps,
+           list_avg(list(band_rps ORDER BY period, owner_id)) AS band_rps,
+           list_avg(list(reach_brier ORDER BY period, owner_id)) AS reach_brier,
+           list_avg(list(coverage_80 ORDER BY period, owner_id)) AS coverage_80,
+           count(*) AS forecasts,
            histogram(least(floor(pit * 10), 9)::INTEGER + 1) AS pit_map
     FROM per_forecast
     GROUP BY k, method

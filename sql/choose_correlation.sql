@@ -40,21 +40,26 @@ grid AS (
 ),
 forecasts AS MATERIALIZED (
     SELECT g.rho, d.period, d.owner_id, any_value(d.region) AS region,
-           sum(d.won_amount) AS actual,
+           list_sum(list(d.won_amount ORDER BY d.won_amount)) AS actual,
            outcome_dist(d.amount, d.prob, correlation := g.rho) AS o
     FROM deals AS d
     CROSS JOIN grid AS g
     GROUP BY g.rho, d.period, d.owner_id
 ),
 scores AS (
-    SELECT rho, region, outcome_crps(o, actual) AS crps, outcome_pit(o, actual) AS pit,
+    SELECT rho, region, period, owner_id, outcome_crps(o, actual) AS crps,
+           outcome_pit(o, actual) AS pit,
            (actual BETWEEN outcome_interval(o).lo AND outcome_interval(o).hi)::DOUBLE AS inside
     FROM forecasts
     WHERE o IS NOT NULL
 ),
 by_scope AS (
     SELECT coalesce(region, 'all regions') AS scope, grouping(region) AS overall, rho,
-           count(*) AS forecasts, avg(crps) AS crps, avg(inside) AS coverage_80, avg(pit) AS pit
+           count(*) AS forecasts,
+           -- means in a fixed order, so the same data gives the same bits on any thread count
+           list_avg(list(crps ORDER BY period, owner_id)) AS crps,
+           list_avg(list(inside ORDER BY period, owner_id)) AS coverage_80,
+           list_avg(list(pit ORDER BY period, owner_id)) AS pit
     FROM scores
     GROUP BY GROUPING SETS ((rho, region), (rho))
 )
