@@ -13,10 +13,12 @@ from typing import Optional
 import duckdb
 import typer
 
-from . import demo as demo_module
-from . import chart_rows, project_config, queries, result_writer, runner
+from . import project_config, queries
 from .adapters.registry import connect
 from .errors import SqlriskError
+
+# The runner, the writers, the demo and the charts load in the commands that use them, so
+# that `sqlrisk --help` and `sqlrisk queries` start about as fast as duckdb and typer import.
 
 app = typer.Typer(
     help="Exact and simulated odds for a sales pipeline's won total, in DuckDB SQL.",
@@ -64,6 +66,8 @@ def demo(
     Example: sqlrisk demo --output-dir out
     """
     try:
+        from . import demo as demo_module
+
         with connect() as con:
             typer.echo(demo_module.run_demo(con, out_dir))
     except (SqlriskError, duckdb.Error) as exc:
@@ -127,6 +131,8 @@ def _open(db: Optional[str], write: bool = False) -> tuple[duckdb.DuckDBPyConnec
     """The connection, and whether its database file was created by this run."""
     created = write and db not in (None, ":memory:") and not Path(db).exists()
     # Read-only unless the run writes (--into): reading works on a read-only file or share.
+    from . import runner
+
     con = runner.open_database(db, read_only=not write and db is not None, create=created)
     con.execute(f"SET enable_progress_bar = {str(_interactive()).lower()}")
     return con, created
@@ -139,6 +145,8 @@ def _remove_database(db: str) -> None:
 
 
 def _prepare(con, saved, params, config, source, column, strict) -> None:
+    from . import runner
+
     specs = project_config.table_specs(config, runner.split_pairs(source, "--source"), column)
     try:
         warnings = runner.prepare_inputs(con, saved, params, specs, strict=strict)
@@ -197,6 +205,8 @@ def run(
     """
     if replace_rows is not None and into is None:
         raise typer.BadParameter("--replace-rows needs --into TABLE", param_hint="--replace-rows")
+    from . import result_writer, runner
+
     if fmt not in result_writer.FORMATS:
         raise typer.BadParameter(f"{fmt!r} is not one of {', '.join(result_writer.FORMATS)}",
                                  param_hint="--format")
@@ -272,6 +282,8 @@ def chart(
     """
     if out.suffix.lower() not in (".svg", ".png"):
         raise typer.BadParameter("the picture must be a .svg or .png file", param_hint="--output")
+    from . import chart_rows, runner
+
     cut_values = chart_rows.parse_cuts(cuts, typer.BadParameter) if cuts else None
     try:
         saved = queries.find(query)
