@@ -17,7 +17,7 @@ import pyarrow as pa
 
 from ..kernels import heavy, readout, scenarios
 from ..kernels.lattice import DEFAULT_BINS
-from ..kernels.outcome import OutcomeBatch
+from ..kernels.outcome import OutcomeBatch, small_groups_threads
 from . import arrow_io
 
 
@@ -79,8 +79,8 @@ def _read_rows(b: OutcomeBatch, small: SmallGroups, values, offsets, keep, lengt
     if not by_scenario.any():
         return read
     vals, offs = ragged_subset(values, offsets, by_scenario)
-    exact = by_scenario_fn(small.amount, small.prob, small.offsets,
-                           np.flatnonzero(by_scenario), vals, offs)
+    exact = small_groups_threads(by_scenario_fn, small.amount, small.prob, small.offsets,
+                                 np.flatnonzero(by_scenario), vals, offs)
     return _interleave(keep, on_lattice, read, exact, lengths)
 
 

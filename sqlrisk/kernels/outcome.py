@@ -190,6 +190,27 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
     return LatticeBatch(**joined)
 
 
+#: Fewest small groups a reader splits between threads (each costs about a microsecond).
+PARALLEL_MIN_GROUPS = 512
+
+
+def small_groups_threads(kernel, amount, prob, offsets, groups, values, value_offsets):
+    """``kernel(amount, prob, offsets, groups, values, value_offsets)`` (``scenarios``'
+    ``bands_small`` or ``quantiles_small``: answers of each group back to back) with the
+    groups split between THREADS threads; every group is answered on its own, so the
+    parts give the same numbers as one call."""
+    n = len(groups)
+    if THREADS < 2 or n < PARALLEL_MIN_GROUPS:
+        return kernel(amount, prob, offsets, groups, values, value_offsets)
+    bounds = np.linspace(0, n, THREADS + 1).astype(np.int64)
+    parts = [(amount, prob, offsets, groups[g0:g1],
+              values[value_offsets[g0]:value_offsets[g1]],
+              value_offsets[g0:g1 + 1] - value_offsets[g0])
+             for g0, g1 in zip(bounds[:-1], bounds[1:])]
+    with ThreadPoolExecutor(len(parts)) as pool:
+        return np.concatenate(list(pool.map(lambda args: kernel(*args), parts)))
+
+
 def _pooled(amount: np.ndarray, prob: np.ndarray, bins: int, step: float = 0.0):
     """A large group as the sum of leaves of LEAF_DEALS deals each.
 

@@ -71,20 +71,81 @@ def scenario_totals(a, p):
 
 
 @njit(cache=True, nogil=True)
+def _sorted_half(a, p, first, tot, pr, tmp_t, tmp_p):
+    """The totals of the deals ``first, first + 2, ...`` in ascending order, with their
+    probabilities: the totals without a deal and those with it are each sorted, so adding
+    a deal is one merge of the two lists (Horowitz & Sahni 1974), ``2^k`` steps in all.
+    Fills two of the four buffers and returns them with the count."""
+    tot[0] = 0.0
+    pr[0] = 1.0
+    filled = 1
+    for i in range(first, len(a), 2):
+        add = a[i]
+        win = p[i]
+        lose = 1.0 - win
+        lo = 0
+        up = 0
+        k = 0
+        while lo < filled and up < filled:
+            if tot[lo] <= tot[up] + add:
+                tmp_t[k] = tot[lo]
+                tmp_p[k] = pr[lo] * lose
+                lo += 1
+            else:
+                tmp_t[k] = tot[up] + add
+                tmp_p[k] = pr[up] * win
+                up += 1
+            k += 1
+        while lo < filled:
+            tmp_t[k] = tot[lo]
+            tmp_p[k] = pr[lo] * lose
+            lo += 1
+            k += 1
+        while up < filled:
+            tmp_t[k] = tot[up] + add
+            tmp_p[k] = pr[up] * win
+            up += 1
+            k += 1
+        filled *= 2
+        tot, tmp_t = tmp_t, tot
+        pr, tmp_p = tmp_p, pr
+    return tot, pr, filled
+
+
+@njit(cache=True, nogil=True)
+def half_buffers(deals):
+    """Work space for ``halves_into`` on groups of up to ``deals`` uncertain deals."""
+    size = 1 << ((deals + 1) // 2)
+    return np.empty((9, size + 1))
+
+
+@njit(cache=True, nogil=True)
+def halves_into(a, p, work):
+    """``halves`` in the rows of ``work`` (from ``half_buffers``): no allocation, so a
+    batch of ten-deal groups costs well under a microsecond each."""
+    x, px, nx = _sorted_half(a, p, 0, work[0], work[1], work[2], work[3])
+    y, py, ny = _sorted_half(a, p, 1, work[4], work[5], work[6], work[7])
+    cy = work[8]
+    cy[0] = 0.0
+    for j in range(ny):
+        cy[j + 1] = cy[j] + py[j]
+    return x[:nx], px[:nx], y[:ny], py[:ny], cy[:ny + 1]
+
+
+@njit(cache=True, nogil=True)
 def halves(a, p):
     """Sorted totals of the two halves (deals dealt alternately) and their probabilities,
     ``x, px, y, py, cy``, with ``cy[j]`` the probability of the ``j`` smallest right-hand
     totals."""
-    x, px = scenario_totals(a[0::2], p[0::2])
-    order = np.argsort(x)
-    x, px = x[order], px[order]
-    y, py = scenario_totals(a[1::2], p[1::2])
-    order = np.argsort(y)
-    y, py = y[order], py[order]
-    cy = np.zeros(len(y) + 1)
-    for j in range(len(y)):
-        cy[j + 1] = cy[j] + py[j]
-    return x, px, y, py, cy
+    return halves_into(a, p, half_buffers(len(a)))
+
+
+@njit(cache=True, nogil=True)
+def _halves_in(a, p, work):
+    """``halves`` in ``work`` when it is large enough for ``len(a)`` deals."""
+    if len(work[0]) - 1 < (1 << ((len(a) + 1) // 2)):
+        return halves(a, p)
+    return halves_into(a, p, work)
 
 
 @njit(cache=True, nogil=True)
@@ -160,17 +221,29 @@ def quantile(x, px, y, cy, shift, q):
 
 
 @njit(cache=True, nogil=True)
+def _work_space(amount, offsets, groups):
+    """Buffers for the groups ``groups``: their deals, and ``halves_into``'s work space."""
+    longest = 1
+    for g in groups:
+        longest = max(longest, offsets[g + 1] - offsets[g])
+    return np.empty(longest), np.empty(longest), half_buffers(min(longest, MAX_DEALS))
+
+
+@njit(cache=True, nogil=True)
 def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
-    """Band probabilities of the groups ``groups`` (``len(cuts_g) + 1`` values each)."""
+    """Band probabilities of the groups ``groups`` (``len(cuts_g) + 1`` values each).
+    Buffers are allocated once per call, not per group."""
     out = np.empty(len(cuts) + len(groups))
+    a_buf, p_buf, work = _work_space(amount, offsets, groups)
+    at_buf = np.empty(max(1, len(cuts)))
     pos = 0
     for n, g in enumerate(groups):
-        a, p, shift = active_deals(amount[offsets[g]:offsets[g + 1]],
-                                   prob[offsets[g]:offsets[g + 1]])
-        x, px, y, py, cy = halves(a, p)
+        m, shift, _flipped = activate(amount[offsets[g]:offsets[g + 1]],
+                                      prob[offsets[g]:offsets[g + 1]], False, a_buf, p_buf)
+        x, px, y, py, cy = _halves_in(a_buf[:m], p_buf[:m], work)
         lowest = shift + x[0] + y[0]
         highest = shift + x[-1] + y[-1]
-        at = np.empty(cut_offsets[n + 1] - cut_offsets[n])
+        at = at_buf[:cut_offsets[n + 1] - cut_offsets[n]]
         for c in range(len(at)):
             cut = cuts[cut_offsets[n] + c]
             at[c] = below(x, px, y, cy, cut, shift, tolerance(cut, lowest, highest))
@@ -182,10 +255,11 @@ def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
 def quantiles_small(amount, prob, offsets, groups, qs, q_offsets):
     """Quantiles of the groups ``groups`` at their levels."""
     out = np.empty(len(qs))
+    a_buf, p_buf, work = _work_space(amount, offsets, groups)
     for n, g in enumerate(groups):
-        a, p, shift = active_deals(amount[offsets[g]:offsets[g + 1]],
-                                   prob[offsets[g]:offsets[g + 1]])
-        x, px, y, py, cy = halves(a, p)
+        m, shift, _flipped = activate(amount[offsets[g]:offsets[g + 1]],
+                                      prob[offsets[g]:offsets[g + 1]], False, a_buf, p_buf)
+        x, px, y, py, cy = _halves_in(a_buf[:m], p_buf[:m], work)
         for i in range(q_offsets[n], q_offsets[n + 1]):
             out[i] = quantile(x, px, y, cy, shift, qs[i])
     return out
