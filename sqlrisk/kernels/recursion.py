@@ -30,6 +30,7 @@ from numba import njit
 from .lattice import EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS, exact_budget, plan_group
 from .order import activate
 from .scenarios import SNAP_BINS, snap_fill
+from .sparse import prefers_sparse
 
 
 @njit(cache=True, nogil=True)
@@ -172,13 +173,6 @@ GROUP_FIELDS = ("status", "origin", "step", "exact", "rounding", "linear", "lo")
 DEAL_FIELDS = ("offset", "frac", "prob")
 
 
-#: A reader's group is answered from its 2 x 2^(m/2) half-scenario totals rather than
-#: an exact lattice when those are at most 1 / SCENARIO_COST of the lattice's bins
-#: (sorting and sweeping a total costs several bin updates; measured by
-#: ``tests/benchmarks/small_groups.py``).
-SCENARIO_COST = 8
-
-
 @njit(cache=True, nogil=True)
 def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit,
                 flip):
@@ -240,9 +234,10 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         # lattice (the automatic step may take the unit for up to AUTO_MAX_BINS bins) costs
         # more than its scenarios, and a stored outcome of megabytes
         cheap = ex and (step_req[g] > 0 or count <= exact_budget(m - a0, bins))
-        # a reader's small group goes to its scenarios also when they are far fewer than
-        # the exact lattice's bins (ten deals in hundreds: 2 x 32 totals, not 4,096 bins)
-        few = (1 << ((m - a0 + 1) // 2)) * SCENARIO_COST <= count
+        # a reader's small group whose exact lattice is mostly unreachable points (ten
+        # deals in hundreds: at most 1,024 totals, not 4,096 bins) is computed on its
+        # reachable totals by the small-group kernels (``sparse.py``, the same numbers)
+        few = cheap and lin and prefers_sparse(m - a0, count)
         if st == OK and (not cheap or few) and m - a0 <= scenario_max:
             status[g] = SCENARIOS
             continue

@@ -33,6 +33,7 @@ import math
 import numpy as np
 from numba import njit
 
+from . import sparse
 from .order import activate
 from .readout import CUT_REL, Q_TOL, write_bands
 
@@ -235,15 +236,23 @@ def bands_small(amount, prob, offsets, groups, cuts, cut_offsets):
     Buffers are allocated once per call, not per group."""
     out = np.empty(len(cuts) + len(groups))
     a_buf, p_buf, work = _work_space(amount, offsets, groups)
+    bufs = sparse.buffers(len(a_buf))
     at_buf = np.empty(max(1, len(cuts)))
     pos = 0
     for n, g in enumerate(groups):
+        at = at_buf[:cut_offsets[n + 1] - cut_offsets[n]]
+        use, origin, step, size, k, idx, val, cum = sparse.read_group(
+            amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bufs)
+        if use:  # an exact lattice's numbers, on its reachable points
+            for c in range(len(at)):
+                at[c] = sparse.below(origin, step, size, idx, cum, k, cuts[cut_offsets[n] + c])
+            pos = write_bands(at, min(cum[k - 1], 1.0), out, pos)
+            continue
         m, shift, _flipped = activate(amount[offsets[g]:offsets[g + 1]],
                                       prob[offsets[g]:offsets[g + 1]], False, a_buf, p_buf)
         x, px, y, py, cy = _halves_in(a_buf[:m], p_buf[:m], work)
         lowest = shift + x[0] + y[0]
         highest = shift + x[-1] + y[-1]
-        at = at_buf[:cut_offsets[n + 1] - cut_offsets[n]]
         for c in range(len(at)):
             cut = cuts[cut_offsets[n] + c]
             at[c] = below(x, px, y, cy, cut, shift, tolerance(cut, lowest, highest))
@@ -256,7 +265,14 @@ def quantiles_small(amount, prob, offsets, groups, qs, q_offsets):
     """Quantiles of the groups ``groups`` at their levels."""
     out = np.empty(len(qs))
     a_buf, p_buf, work = _work_space(amount, offsets, groups)
+    bufs = sparse.buffers(len(a_buf))
     for n, g in enumerate(groups):
+        use, origin, step, size, k, idx, val, cum = sparse.read_group(
+            amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bufs)
+        if use:
+            for i in range(q_offsets[n], q_offsets[n + 1]):
+                out[i] = sparse.quantile(origin, step, size, idx, val, cum, k, qs[i])
+            continue
         m, shift, _flipped = activate(amount[offsets[g]:offsets[g + 1]],
                                       prob[offsets[g]:offsets[g + 1]], False, a_buf, p_buf)
         x, px, y, py, cy = _halves_in(a_buf[:m], p_buf[:m], work)
