@@ -205,6 +205,20 @@ def test_outcome_merge(con, parts):
          check_outcome)
 
 
+def test_adding_outcomes_finer_than_their_totals(con):
+    """Found by hypothesis: a step of 3e-131 at origin 3 leaves every total of the sum the same
+    double; the sum was all cut away by its windows and came back as mass [nan]."""
+    o = {"origin": 3.0, "step": 2.927549601861179e-131, "mass": [0.1, 0.2, 0.3, 0.4],
+         "trials": 0, "rounding": 0.0}
+    for sql, params in [(f"SELECT outcome_add(?::{OUTCOME}, ?::{OUTCOME})", [o, o]),
+                        (f"SELECT outcome_merge(o) FROM (SELECT unnest(?::{OUTCOME}[]) AS o)",
+                         [[o, o]])]:
+        (value,), = con.execute(sql, params).fetchall()
+        check_outcome(value)
+        assert value["origin"] == 6.0 and value["mass"] == [1.0]
+        assert value["rounding"] >= 6 * o["step"]  # the points it merged lie within rounding
+
+
 def test_the_checks_themselves_can_fail(con):
     """A NaN answer or a foreign exception would be caught (guards against a vacuous test)."""
     with pytest.raises(AssertionError):

@@ -183,6 +183,11 @@ def sum_outcomes(origin, step, mass, offsets, rounding, mean, var, largest, work
         return float(origin.sum()), float(step.max()), np.ones(1), float(rounding.sum())
     support_lo = float(origin.sum())
     support_hi = float((origin + step * np.maximum(lengths - 1, 0)).sum())
+    if support_hi - support_lo <= 4.0 * np.finfo(float).eps * max(abs(support_lo), abs(support_hi)):
+        # steps so fine beside the totals that every total of the sum is the same double
+        # (a stored outcome with step 1e-131 at origin 3): one point, moved by its span
+        span = float((step * np.maximum(lengths - 1, 0)).sum())
+        return support_lo, float(step.max()), np.ones(1), float(rounding.sum()) + span
     total_lo, total_hi = window(mean.sum(), var.sum(), largest.max(), support_lo, support_hi)
     width = total_hi - total_lo
     if step_fixed > 0:
