@@ -3,9 +3,11 @@
 -- reads: quota_bands(owner_id, target number; floor number, stretch number, period), owners(owner_id, region)
 -- $rho (number): correlation between the deals of one region, in [0, 1) (default: 0.15)
 -- $period: quota period to read from quota_bands; rows with no period apply to every period (default: 2027-Q1)
--- The correlated odds are exact (one-factor Gaussian copula). A region's cut is the sum of
--- its owners' cuts, present only when each of its quota rows has it; the bands lists have
--- one probability per band of the cuts present.
+-- The correlated odds follow the one-factor Gaussian copula: exact, or for large regions
+-- without a dominant deal from an Edgeworth expansion good to about 1e-5 (README
+-- 'Correlated deals and simulation'). A region's cut is the sum of its owners' cuts,
+-- present only when each of its quota rows has it; the bands lists have one probability
+-- per band of the cuts present.
 WITH bands AS (
     SELECT w.region,
            CASE WHEN count(q.floor) = count(*) THEN sum(q.floor) END AS floor,

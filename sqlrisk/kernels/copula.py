@@ -22,6 +22,14 @@ like ``sqrt(n)``; past ``MAX_NODES`` the function refuses and points to
 ``outcome_sim``. Nodes whose weight is below ``MIN_WEIGHT`` carry no visible
 mass and are skipped. ``tests/test_correlation.py`` measures the accuracy
 against SciPy's adaptive quadrature.
+
+Large groups on the automatic lattice (at least ``edgeworth.SMOOTH_MIN_DEALS``
+uncertain deals, an independent outcome already read as bins) skip the lattice
+per node: each node's conditional total is taken from its cumulants by a
+third-order Edgeworth expansion (``edgeworth.py``), used only where the
+expansion's own third-order terms stay below ``edgeworth.SMOOTH_TOL`` in
+probability; groups with a dominant deal, exact lattices and requested steps
+keep the route above (``tests/test_edgeworth.py``).
 """
 
 from __future__ import annotations
@@ -33,8 +41,10 @@ from numpy.polynomial.hermite_e import hermegauss
 from numpy.polynomial.legendre import leggauss
 from scipy.special import ndtr, ndtri
 
+from . import edgeworth
 from .lattice import DEFAULT_BINS, automatic_step, common_unit, group_moments
 from .outcome import OK, exact_outcomes, splice
+from .readout import is_smooth
 
 NODES = 64
 GH_MAX_RHO = 0.25
@@ -125,6 +135,8 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     rho = np.asarray(rho, dtype=np.float64)
     base, status = exact_outcomes(amount, prob, offsets, step_req, bins)
     todo = (rho > 0) & (status == OK) & (np.diff(base.offsets) > 1)
+    base, smooth = _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo)
+    todo &= ~smooth
     for value in np.unique(rho[todo]):  # one quadrature rule per distinct rho
         groups = np.flatnonzero(todo & (rho == value))
         sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
@@ -138,6 +150,29 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
         automatic = step_req[groups] <= 0  # the nodes of these snap where the base did
         base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w, automatic))
     return base, status
+
+
+def _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo):
+    """``base`` with the large groups the Edgeworth route (``edgeworth.py``) computes
+    within ``SMOOTH_TOL`` replaced, and a mask of them. Only groups on the automatic
+    lattice whose independent outcome is already read as bins (amounts split between
+    points) qualify: an exact lattice stays exact."""
+    done = np.zeros(len(todo), dtype=bool)
+    rows = []
+    for g in np.flatnonzero(todo & (step_req <= 0)):
+        a, p = amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]]
+        if (not is_smooth(base.step[g], base.rounding[g])
+                or np.count_nonzero((a != 0) & (p > 0) & (p < 1)) < edgeworth.SMOOTH_MIN_DEALS):
+            continue
+        group = np.array([0, len(a)], dtype=np.int64)
+        z, w = nodes(float(rho[g]), factor_resolution(a, p, group, float(rho[g])))
+        found = edgeworth.smooth_outcome(a, p, float(rho[g]), z, w, bins)
+        if found is not None and found[4] <= edgeworth.SMOOTH_TOL:
+            done[g] = True
+            rows.append(found[:4])
+    if not done.any():
+        return base, done
+    return splice(base, np.flatnonzero(done), rows), done
 
 
 def _steps_for_mixture(a, p, rho_rows, offsets, step_req, bins, z, base_step, base_span):
