@@ -114,7 +114,7 @@ def reachable_mass(offset, prob, at, idx, val, idx2, val2):
         k = offset[d]
         p = prob[d]
         q0 = 1.0 - p
-        q1 = p * (1.0 - 0.0)
+        q1 = p  # the lattice's p * (1 - frac), with frac = 0 on an exact lattice
         i = 0
         j = 0
         out = 0
