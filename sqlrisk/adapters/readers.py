@@ -25,7 +25,12 @@ def subset_batch(b: OutcomeBatch, keep: np.ndarray) -> OutcomeBatch:
     """The rows of ``b`` where ``keep`` is True."""
     if keep.all():
         return b
-    lengths = np.diff(b.offsets)[keep]
+    lengths = np.diff(b.offsets)
+    if not lengths[~keep].any():  # the rows left out hold no mass (scenario groups): no copy
+        offsets = np.append(b.offsets[:-1][keep], b.offsets[-1]).astype(np.int64)
+        return OutcomeBatch(b.origin[keep], b.step[keep], b.mass, offsets,
+                            b.trials[keep], b.rounding[keep], b.valid[keep])
+    lengths = lengths[keep]
     idx = arrow_io.ranges(b.offsets[:-1][keep], lengths)
     offsets = np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
     return OutcomeBatch(b.origin[keep], b.step[keep], b.mass[idx], offsets,
