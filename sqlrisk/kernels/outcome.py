@@ -129,14 +129,25 @@ def exact_outcomes(amount, prob, offsets, step_req=None, bins: int = DEFAULT_BIN
     rows = np.repeat(direct, counts)
     direct_offsets = np.concatenate([[0], np.cumsum(np.where(direct, counts, 0))]).astype(np.int64)
     batch, status = _direct(amount[rows], prob[rows], direct_offsets, step_req, bins, *limits)
-    parts = [_pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins,
-                     float(step_req[g])) for g in pooled]
+    parts = _pooled_groups(amount, prob, offsets, pooled, bins, step_req)
     wide = np.array([part is None for part in parts], dtype=bool)
     batch = splice(batch, pooled, [(0.0, float(step_req[g]), np.ones(1), 0.0) if part is None
                                    else part for g, part in zip(pooled, parts)])
     status[pooled] = np.where(wide, TOO_MANY_BINS, OK)
     batch.valid[pooled] = ~wide
     return batch, status
+
+
+def _pooled_groups(amount, prob, offsets, pooled, bins, step_req):
+    """``_pooled`` of each group in ``pooled``, the groups shared between THREADS threads
+    (each group is computed on its own, so the numbers do not depend on the split)."""
+    def one(g):
+        return _pooled(amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]], bins,
+                       float(step_req[g]))
+    if THREADS < 2 or len(pooled) < 2:
+        return [one(g) for g in pooled]
+    with ThreadPoolExecutor(THREADS) as pool:
+        return list(pool.map(one, pooled))
 
 
 def _direct(amount, prob, offsets, step_req, bins, scenario_max=0, snap_max=0,
