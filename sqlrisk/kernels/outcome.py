@@ -17,7 +17,7 @@ import numpy as np
 from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
 from .lattice import tail_window as window
 from .order import canonical_order
-from .recursion import DEAL_FIELDS, GROUP_FIELDS, LatticeBatch, exact_batch
+from .recursion import LatticeBatch, exact_batch, fill, new_plan, plan_batch
 from .scenarios import SNAP_DEALS
 from .spectral import fold_group
 from .sums import sum_outcomes
@@ -174,8 +174,10 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
                          snap_explicit, flip) -> LatticeBatch:
     """``exact_batch`` with the groups split between THREADS threads.
 
-    The kernel releases the GIL, and every group is computed on its own, so the
-    parts give the same numbers as one call would.
+    The kernels release the GIL, and every group is computed on its own, so the
+    parts give the same numbers as one call would. The parts plan into slices of one
+    set of arrays, then fill their groups' slices of one mass array: nothing is
+    copied to put them back together.
     """
     n_groups = len(offsets) - 1
     if THREADS < 2 or n_groups < 2 * THREADS or offsets[-1] < PARALLEL_MIN_DEALS:
@@ -183,22 +185,43 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
                            snap_explicit, flip)
     cuts = np.searchsorted(offsets, np.linspace(0, offsets[-1], THREADS + 1)[1:-1])
     bounds = [0, *sorted(set(int(c) for c in cuts if 0 < c < n_groups)), n_groups]
-    parts = []
-    for g0, g1 in zip(bounds[:-1], bounds[1:]):
-        r0, r1 = offsets[g0], offsets[g1]
-        parts.append((amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins,
-                      scenario_max, snap_max, snap_explicit[g0:g1], flip))
+    parts = [(g0, g1, int(offsets[g0]), int(offsets[g1])) for g0, g1 in zip(bounds[:-1], bounds[1:])]
+    plan = new_plan(n_groups, len(amount))
+    (status, origin, step, exact, rounding, linear, lo, size, act_amount, act_prob, act_offset,
+     act_frac, act_start, act_stop, snapped, snap_origin) = plan
+
+    def groups(g0, g1):
+        return [x[g0:g1] for x in (status, origin, step, exact, rounding, linear, lo, size)]
+
+    def deals(r0, r1):
+        return [x[r0:r1] for x in (act_amount, act_prob, act_offset, act_frac)]
+
+    def plan_part(part):
+        g0, g1, r0, r1 = part
+        plan_batch(amount[r0:r1], prob[r0:r1], offsets[g0:g1 + 1] - r0, step_req[g0:g1], bins,
+                   scenario_max, snap_max, snap_explicit[g0:g1], flip, *groups(g0, g1),
+                   *deals(r0, r1), act_start[g0:g1], act_stop[g0:g1], snapped[g0:g1],
+                   snap_origin[g0:g1])
+
+    mass_offsets = np.zeros(n_groups + 1, np.int64)
+
+    def fill_part(part):
+        g0, g1, r0, r1 = part
+        fill(mass, mass_offsets[g0:g1 + 1], status[g0:g1], step[g0:g1], exact[g0:g1],
+             rounding[g0:g1], linear[g0:g1], lo[g0:g1], snapped[g0:g1], snap_origin[g0:g1],
+             act_amount[r0:r1], act_offset[r0:r1], act_frac[r0:r1], act_prob[r0:r1],
+             act_start[g0:g1], act_stop[g0:g1])
+
     with ThreadPoolExecutor(len(parts)) as pool:
-        results = list(pool.map(lambda args: exact_batch(*args), parts))
-    rows = [offsets[g0] for g0 in bounds[:-1]]
-    mass_shift = np.cumsum([0] + [len(r.mass) for r in results[:-1]])
-    joined = {name: np.concatenate([getattr(r, name) for r in results])
-              for name in GROUP_FIELDS + DEAL_FIELDS + ("mass",)}
-    joined["mass_offsets"] = np.concatenate(
-        [[0]] + [r.mass_offsets[1:] + shift for r, shift in zip(results, mass_shift)])
-    for name in ("act_start", "act_stop"):
-        joined[name] = np.concatenate([getattr(r, name) + row for r, row in zip(results, rows)])
-    return LatticeBatch(**joined)
+        list(pool.map(plan_part, parts))
+        np.cumsum(size, out=mass_offsets[1:])
+        mass = np.zeros(mass_offsets[-1])
+        list(pool.map(fill_part, parts))
+    for g0, g1, r0, _ in parts:  # each part counted its deals from its own first row
+        act_start[g0:g1] += r0
+        act_stop[g0:g1] += r0
+    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
+                        act_offset, act_frac, act_prob, act_start, act_stop)
 
 
 #: Fewest small groups a reader splits between threads (each costs about a microsecond).

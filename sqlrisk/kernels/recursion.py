@@ -167,10 +167,6 @@ def _snap_plan(a, step_req):
 LatticeBatch = namedtuple("LatticeBatch", [
     "status", "origin", "step", "exact", "rounding", "linear", "lo", "mass_offsets", "mass",
     "offset", "frac", "prob", "act_start", "act_stop"])
-#: Which fields are per group, per deal, and the two kinds of offsets (``outcome``
-#: splits a batch between threads and puts the parts back together by these).
-GROUP_FIELDS = ("status", "origin", "step", "exact", "rounding", "linear", "lo")
-DEAL_FIELDS = ("offset", "frac", "prob")
 
 
 @njit(cache=True, nogil=True)
@@ -190,27 +186,46 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
     ``spectral.fold_group``).
     """
     n_groups = len(offsets) - 1
-    status = np.zeros(n_groups, np.int64)
-    origin = np.zeros(n_groups)
-    step = np.zeros(n_groups)
-    exact = np.zeros(n_groups, np.bool_)
-    rounding = np.zeros(n_groups)
-    linear = np.zeros(n_groups, np.bool_)
-    lo = np.zeros(n_groups, np.int64)
-    size = np.zeros(n_groups, np.int64)
-    n_rows = len(amount)
-    act_amount = np.empty(n_rows)
-    act_prob = np.empty(n_rows)
-    act_offset = np.zeros(n_rows, np.int64)
-    act_frac = np.zeros(n_rows)
-    act_start = offsets[:-1].copy()
-    act_stop = offsets[:-1].copy()
-    snapped = np.zeros(n_groups, np.bool_)
-    snap_origin = np.zeros(n_groups)
+    plan = new_plan(n_groups, len(amount))
+    plan_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit, flip,
+               *plan)
+    status, origin, step, exact, rounding, linear, lo, size = plan[:8]
+    act_amount, act_prob, act_offset, act_frac, act_start, act_stop, snapped, snap_origin = plan[8:]
+    mass_offsets = np.zeros(n_groups + 1, np.int64)
+    for g in range(n_groups):
+        mass_offsets[g + 1] = mass_offsets[g] + size[g]
+    mass = np.zeros(mass_offsets[-1])
+    fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
+          act_amount, act_offset, act_frac, act_prob, act_start, act_stop)
+    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
+                        act_offset, act_frac, act_prob, act_start, act_stop)
 
+
+@njit(cache=True, nogil=True)
+def new_plan(n_groups, n_rows):
+    """Empty arrays for ``plan_batch``: per group ``status, origin, step, exact, rounding,
+    linear, lo, size``; per deal ``act_amount, act_prob, act_offset, act_frac``; per group
+    ``act_start, act_stop`` (set by ``plan_batch``), ``snapped, snap_origin``."""
+    return (np.zeros(n_groups, np.int64), np.zeros(n_groups), np.zeros(n_groups),
+            np.zeros(n_groups, np.bool_), np.zeros(n_groups), np.zeros(n_groups, np.bool_),
+            np.zeros(n_groups, np.int64), np.zeros(n_groups, np.int64),
+            np.empty(n_rows), np.empty(n_rows), np.zeros(n_rows, np.int64), np.zeros(n_rows),
+            np.zeros(n_groups, np.int64), np.zeros(n_groups, np.int64), np.zeros(n_groups, np.bool_),
+            np.zeros(n_groups))
+
+
+@njit(cache=True, nogil=True)
+def plan_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, snap_explicit,
+               flip, status, origin, step, exact, rounding, linear, lo, size, act_amount,
+               act_prob, act_offset, act_frac, act_start, act_stop, snapped, snap_origin):
+    """The planning pass of ``exact_batch``, written into the arrays of ``new_plan`` (or
+    slices of larger ones: ``outcome`` plans parts of a batch in threads into one set)."""
+    n_groups = len(offsets) - 1
     for g in range(n_groups):
         a0 = offsets[g]
         a1 = offsets[g + 1]
+        act_start[g] = a0  # rows counted from this call's first row
+        act_stop[g] = a0
         if a1 == a0:
             status[g] = EMPTY
             continue
@@ -266,18 +281,10 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         else:
             origin[g] = shift + first * h
 
-    mass_offsets = np.zeros(n_groups + 1, np.int64)
-    for g in range(n_groups):
-        mass_offsets[g + 1] = mass_offsets[g] + size[g]
-    mass = np.zeros(mass_offsets[-1])
-    _fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
-          act_amount, act_offset, act_frac, act_prob, act_start, act_stop)
-    return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
-                        act_offset, act_frac, act_prob, act_start, act_stop)
 
 
 @njit(cache=True, nogil=True)
-def _fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
+def fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
           act_amount, act_offset, act_frac, act_prob, act_start, act_stop):
     """Each planned linear group's mass: its snapped scenario totals, or the recursion over
     its deals (a snapped group's ``rounding`` and ``exact`` are known only once filled)."""
