@@ -22,6 +22,9 @@ from .errors import SqlriskError
 
 app = typer.Typer(
     help="Exact and simulated odds for a sales pipeline's won total, in DuckDB SQL.",
+    # paragraphs are re-wrapped to the terminal; a paragraph that starts with \b (the
+    # examples) keeps its lines
+    rich_markup_mode=None,
     no_args_is_help=True,
     add_completion=False,
 )
@@ -56,7 +59,7 @@ def _text_param_hint(exc: Exception, saved, param: list[str]) -> str:
             f"'-- ${first} (number): ...' in its header, or write ${first}::DOUBLE)")
 
 
-@app.command()
+@app.command(short_help="The demo company's odds, charts and backtest, printed.")
 def demo(
     out_dir: Path = typer.Option(Path("out"), "--output-dir",
                                  help="Folder for the demo's chart (created if missing)."),
@@ -74,7 +77,7 @@ def demo(
         fail(clean_error(exc))
 
 
-@app.command("queries")
+@app.command("queries", short_help="The saved queries, what each answers and reads.")
 def list_saved() -> None:
     """List the saved queries in sql/: what each answers, the tables and columns it reads
     (optional ones after the ';') and its parameters.
@@ -159,7 +162,7 @@ def _prepare(con, saved, params, config, source, column, strict) -> None:
         typer.echo(f"warning: {line}", err=True)
 
 
-@app.command()
+@app.command(short_help="Run a saved query, a .sql file or SQL text.")
 def run(
     query: Optional[str] = typer.Argument(None, help=QUERY_HELP),
     sql: Optional[str] = typer.Option(None, "--sql", help=SQL_HELP),
@@ -197,6 +200,7 @@ def run(
     would be skipped or double counted (NULL amounts, duplicate deal_id, owners without
     a quota, percentage probabilities) is reported on stderr.
 
+    \b
     Examples:
       sqlrisk run owner_band_odds --source pipeline=deals.csv --column pipeline.owner_id=rep
       sqlrisk run owner_band_odds --source pipeline=pipeline.parquet --format csv
@@ -238,7 +242,7 @@ def run(
         fail(clean_error(exc).split(". ")[0] + hint if hint else clean_error(exc))
 
 
-@app.command()
+@app.command(short_help="Draw outcomes, odds over time, reliability or a backtest.")
 def chart(
     query: str = typer.Argument(..., help=QUERY_HELP),
     out: Path = typer.Option(..., "--output", "-o",
@@ -273,6 +277,7 @@ def chart(
     a reliability diagram. The backtest's result (method, pit_counts, coverage_80) is drawn
     as one PIT histogram per method and the coverage of the 80% interval against 80%.
 
+    \b
     Examples:
       sqlrisk chart region_outcomes --where "region = 'Tidewater Bay'" --output tidewater.svg
       sqlrisk chart region_outcomes --grid --output regions.png
