@@ -252,3 +252,23 @@ def test_correlation_outside_unit_interval_is_an_error(con, bad):
     with pytest.raises(duckdb.Error, match=r"outcome_dist: correlation .* outside \[0, 1\)"):
         con.execute(f"SELECT outcome_dist(amount, prob, correlation := {bad}) "
                     f"FROM ({PIPELINE})").fetchall()
+
+
+def test_a_groups_outcome_does_not_depend_on_the_other_groups(con):
+    """Each group gets the quadrature rule its own deals need: a 150-deal group batched with
+    a 1,500-deal one (conditional outcomes narrower in z: 27 panels against 15; its dominant
+    deal keeps it on the lattice route) gives the bits it gives alone. Before, the batch shared the finest rule,
+    and the small group's lattice and numbers moved with its companions."""
+    rng = np.random.default_rng(12)
+    rows = [("large", 900_000.0, 0.5)]
+    for name, n in [("small", 150), ("large", 1500)]:
+        for _ in range(n):  # invented amounts in cents, one in 25 a credit note
+            v = round(float(rng.lognormal(8.5, 1.1)), 2) * (-0.3 if rng.random() < 0.04 else 1)
+            rows.append((name, v, float(rng.choice([0.05, 0.15, 0.3, 0.5, 0.7, 0.9]))))
+    con.execute("CREATE OR REPLACE TEMP TABLE companions (g VARCHAR, a DOUBLE, p DOUBLE)")
+    con.executemany("INSERT INTO companions VALUES (?, ?, ?)", rows)
+    q = ("SELECT g, outcome_dist(a, p, correlation := 0.3) FROM companions {} GROUP BY g "
+         "ORDER BY g")
+    together = dict(con.execute(q.format("")).fetchall())
+    alone = dict(con.execute(q.format("WHERE g = 'small'")).fetchall())
+    assert together["small"] == alone["small"]

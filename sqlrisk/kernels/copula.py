@@ -19,8 +19,9 @@ composite Gauss-Legendre: panels of width ``min(2 min(1, s), 4 r)`` over
 rho = 0.5, 1e-16 at rho = 0.8 for small groups, and 1e-8 or better for groups
 of a thousand deals). The node count, and the cost, grow like ``1 / s`` and
 like ``sqrt(n)``; past ``MAX_NODES`` the function refuses and points to
-``outcome_sim``. Nodes whose weight is below ``MIN_WEIGHT`` carry no visible
-mass and are skipped. ``tests/test_correlation.py`` measures the accuracy
+``outcome_sim``. Each group gets the rule its own resolution asks for
+(``rule_key``), so its outcome does not depend on the other groups of a query.
+Nodes whose weight is below ``MIN_WEIGHT`` carry no visible mass and are skipped. ``tests/test_correlation.py`` measures the accuracy
 against SciPy's adaptive quadrature.
 
 Large groups on the automatic lattice (at least ``edgeworth.SMOOTH_MIN_DEALS``
@@ -65,16 +66,15 @@ def nodes(rho: float, resolution: float = math.inf) -> tuple[np.ndarray, np.ndar
     """Quadrature nodes and weights for E[g(Z)], Z standard normal, at correlation rho.
 
     ``resolution`` is the factor step over which the conditional outcome moves
-    by about one standard deviation (``factor_resolution``); panels are kept
+    by about one standard deviation (``group_resolutions``); panels are kept
     to four such steps so a large group's narrow conditional outcomes are
     integrated, not sampled at a few points.
     """
-    if rho <= GH_MAX_RHO and resolution >= GH_RESOLUTION:
+    panels = rule_key(rho, resolution)
+    if panels == 0:
         z, w = hermegauss(NODES)
         w = w / math.sqrt(2.0 * math.pi)
     else:
-        width = min(2.0 * min(1.0, math.sqrt((1.0 - rho) / rho)), 4.0 * resolution)
-        panels = int(math.ceil(2.0 * Z_MAX / width))
         if panels * PANEL_POINTS > MAX_NODES:
             raise ValueError(
                 f"correlation {rho:g} on a group this large needs {panels * PANEL_POINTS:,} "
@@ -88,15 +88,16 @@ def nodes(rho: float, resolution: float = math.inf) -> tuple[np.ndarray, np.ndar
     return z[keep], w[keep]
 
 
-def factor_resolution(amount, prob, offsets, rho: float) -> float:
-    """Smallest factor step over which some group's conditional mean moves by one
-    conditional standard deviation: sd(z) / |d mean / dz| over z in [-6, 6]."""
+def group_resolutions(amount, prob, offsets, rho: float) -> np.ndarray:
+    """Per group, the smallest factor step over which its conditional mean moves by one
+    conditional standard deviation: sd(z) / |d mean / dz| over z in [-6, 6] (inf for a
+    group that does not move)."""
     grid = np.linspace(-6.0, 6.0, 49)
     inner = (prob > 0) & (prob < 1)
     threshold = np.zeros(len(prob))
     threshold[inner] = ndtri(prob[inner])
     load, rest = math.sqrt(rho), math.sqrt(1.0 - rho)
-    best = math.inf
+    best = np.full(len(offsets) - 1, math.inf)
     for z in grid:
         arg = (threshold - load * z) / rest
         p = np.where(inner, ndtr(arg), prob)
@@ -105,9 +106,22 @@ def factor_resolution(amount, prob, offsets, rho: float) -> float:
         var = np.add.reduceat(amount * amount * p * (1.0 - p), offsets[:-1])
         move = np.abs(np.add.reduceat(slope, offsets[:-1]))
         ok = (move > 0) & (var > 0)
-        if ok.any():
-            best = min(best, float(np.min(np.sqrt(var[ok]) / move[ok])))
+        best[ok] = np.minimum(best[ok], np.sqrt(var[ok]) / move[ok])
     return best
+
+
+def factor_resolution(amount, prob, offsets, rho: float) -> float:
+    """The smallest of ``group_resolutions``: the finest rule any of the groups needs."""
+    return float(np.min(group_resolutions(amount, prob, offsets, rho), initial=math.inf))
+
+
+def rule_key(rho: float, resolution: float) -> int:
+    """Which quadrature rule ``nodes`` gives: 0 for Gauss-Hermite, else the panel count.
+    Groups with one key share their nodes exactly."""
+    if rho <= GH_MAX_RHO and resolution >= GH_RESOLUTION:
+        return 0
+    width = min(2.0 * min(1.0, math.sqrt((1.0 - rho) / rho)), 4.0 * resolution)
+    return int(math.ceil(2.0 * Z_MAX / width))
 
 
 def conditional(prob: np.ndarray, rho: np.ndarray, z: float) -> np.ndarray:
@@ -137,19 +151,35 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     todo = (rho > 0) & (status == OK) & (np.diff(base.offsets) > 1)
     base, smooth = _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo)
     todo &= ~smooth
-    for value in np.unique(rho[todo]):  # one quadrature rule per distinct rho
-        groups = np.flatnonzero(todo & (rho == value))
+    for value, resolution, groups in _rule_sets(amount, prob, offsets, rho, todo):
         sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
         rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
         a, p = amount[rows], prob[rows]
         rho_rows = np.full(len(rows), value)
-        z, w = nodes(float(value), factor_resolution(a, p, sub_offsets, float(value)))
+        z, w = nodes(value, resolution)
         covers = (np.diff(base.offsets)[groups] - 1) * base.step[groups]
         steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z,
                                    base.step[groups], covers)
         automatic = step_req[groups] <= 0  # the nodes of these snap where the base did
         base = splice(base, groups, _mix(a, p, rho_rows, sub_offsets, steps, z, w, automatic))
     return base, status
+
+
+def _rule_sets(amount, prob, offsets, rho, todo):
+    """``(rho, resolution, groups)`` for each set of the groups in ``todo`` that share a rho
+    and a quadrature rule: each group gets the rule its own deals need, whatever other
+    groups are in the batch (so its outcome does not depend on them)."""
+    sets = []
+    for value in np.unique(rho[todo]):
+        groups = np.flatnonzero(todo & (rho == value))
+        sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
+        rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
+        res = group_resolutions(amount[rows], prob[rows], sub_offsets, float(value))
+        keys = np.array([rule_key(float(value), r) for r in res])
+        for key in np.unique(keys):
+            pick = keys == key
+            sets.append((float(value), float(res[pick].min()), groups[pick]))
+    return sets
 
 
 def _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo):
