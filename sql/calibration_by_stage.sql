@@ -10,7 +10,8 @@ WITH usable AS (
     WHERE stated_prob IS NOT NULL AND won IS NOT NULL
 ),
 stage_maps AS (
-    SELECT stage, calibration_map(stated_prob, won) AS map, avg(stated_prob) AS stage_mean
+    SELECT stage, calibration_map(stated_prob, won) AS map,
+           list_avg(list(stated_prob ORDER BY stated_prob)) AS stage_mean
     FROM usable
     GROUP BY stage
 ),
@@ -28,7 +29,9 @@ chosen AS (
 ),
 scored AS (
     SELECT u.owner_id, u.stage,
-           avg(u.stated_prob) AS stated_mean,
+           -- means over sorted lists: the same bits whatever the thread count (avg() adds
+           -- in the order the threads finish)
+           list_avg(list(u.stated_prob ORDER BY u.stated_prob)) AS stated_mean,
            avg(u.won::DOUBLE) AS observed_rate,
            brier_score(u.stated_prob, u.won) AS brier_stated,
            brier_score(apply_calibration(c.map, u.stated_prob), u.won) AS brier_calibrated

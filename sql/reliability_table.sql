@@ -22,7 +22,10 @@ usable AS (
 ),
 binned AS (
     SELECT e.bin, e.lo, e.hi, count(u.prob) AS deals, sum(u.won) AS won_deals,
-           avg(u.prob) AS stated_mean, avg(u.won) AS observed_rate
+           -- a mean over a sorted list: the same bits whatever the thread count; won is 0/1,
+           -- so avg(u.won) is exact in any order
+           list_avg(list(u.prob ORDER BY u.prob) FILTER (WHERE u.prob IS NOT NULL)) AS stated_mean,
+           avg(u.won) AS observed_rate
     FROM edges AS e
     LEFT JOIN usable AS u ON u.prob >= e.lo AND (u.prob < e.hi OR e.last)
     GROUP BY e.bin, e.lo, e.hi

@@ -109,3 +109,26 @@ def test_reliability_table_refuses_bad_bins_and_probabilities(demo):
     demo.execute("UPDATE closed_deals SET stated_prob = 45 WHERE deal_id = 'cd_00002'")
     with pytest.raises(duckdb.Error, match=r"probability 45.0 is outside \[0, 1\]"):
         run_saved(demo, "reliability_table")
+
+
+def test_the_means_are_the_same_bits_on_one_thread_and_on_two():
+    """A re-run on another machine stores the same numbers: the stated means are taken over
+    sorted lists, not in the order DuckDB's threads finish (300,000 invented closed deals,
+    enough for DuckDB to split the scan)."""
+    import sqlrisk
+
+    rng = np.random.default_rng(5)
+    n = 300_000
+    con = sqlrisk.connect()
+    con.execute("CREATE TABLE closed_deals AS SELECT * FROM (SELECT unnest(?::VARCHAR[]) AS "
+                "owner_id, unnest(?::VARCHAR[]) AS stage_at_snapshot, unnest(?::DOUBLE[]) AS "
+                "stated_prob, unnest(?::INTEGER[]) AS won)",
+                [[f"o{i}" for i in rng.integers(0, 40, n)],
+                 [f"s{i}" for i in rng.integers(0, 5, n)],
+                 rng.uniform(0, 1, n).round(7).tolist(), rng.integers(0, 2, n).tolist()])
+    results = {}
+    for threads in (2, 1):
+        con.execute(f"SET threads = {threads}")
+        results[threads] = [run_saved(con, name) for name in
+                            ("reliability_table", "calibration_by_stage")]
+    assert results[1] == results[2]
