@@ -22,8 +22,9 @@ PINNED = {
     # moved by the Edgeworth route (issue 17): Saltmarsh Reach (330 deals) is now 7.5e-7
     # from the mixture on its exact unit lattice instead of 3.4e-5; Tidewater Bay unchanged.
     # Its mixture CDF is summed node by node in a compiled loop (within 1e-15 of the first
-    # version, which summed by matrix products)
-    "correlated": "37ccb5e5cec1c360f74753c99232efe1adbc23ed1f670937948bed1b645db77a",
+    # version, which summed by matrix products). Tidewater Bay (resolution 0.30 in z) now
+    # takes 128 Gauss-Hermite nodes: 6e-10 from a 256-node mixture, where 64 were 4.9e-6
+    "correlated": "80c2d815a4edbb580461f369466eed1b873e24f735d71b0cc1b1d5c3791d3b98",
     "merge": "cb1ff26753dccf2825f601721d6752d4f42e129d80dc93d24d5cb0a5528942f2",
     "calibration": "b876360a0fbd1a3a9258b2fcc0796b5cebb98e944dcbdd56933055ceafceba9c",
     "swing_and_readers": "fb7eaa3806142b2607cd806c7db96b85f8b0402bd82eec328540616d6983c905",
