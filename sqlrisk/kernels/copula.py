@@ -23,8 +23,8 @@ of a thousand deals). The node count, and the cost, grow like ``1 / s`` and
 like ``sqrt(n)``; past ``MAX_NODES`` the function refuses and points to
 ``outcome_sim``. Each group gets the rule its own resolution asks for
 (``rule_key``), so its outcome does not depend on the other groups of a query.
-Nodes whose weight is below ``MIN_WEIGHT`` carry no visible mass and are skipped. ``tests/test_correlation.py`` measures the accuracy
-against SciPy's adaptive quadrature.
+Nodes whose weight is below ``MIN_WEIGHT`` carry no visible mass and are skipped.
+``tests/test_correlation.py`` measures the accuracy against SciPy's adaptive quadrature.
 
 Large groups on the automatic lattice (at least ``edgeworth.SMOOTH_MIN_DEALS``
 uncertain deals, an independent outcome already read as bins) skip the lattice
@@ -156,10 +156,8 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     base, smooth = _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo)
     todo &= ~smooth
     for value, resolution, groups in _rule_sets(amount, prob, offsets, rho, todo):
-        sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
-        rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
-        a, p = amount[rows], prob[rows]
-        rho_rows = np.full(len(rows), value)
+        a, p, sub_offsets = _subset(amount, prob, offsets, groups)
+        rho_rows = np.full(len(a), value)
         z, w = nodes(value, resolution)
         covers = (np.diff(base.offsets)[groups] - 1) * base.step[groups]
         steps = _steps_for_mixture(a, p, rho_rows, sub_offsets, step_req[groups], bins, z,
@@ -169,6 +167,13 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     return base, status
 
 
+def _subset(amount, prob, offsets, groups):
+    """The deals of ``groups``, back to back, and their offsets."""
+    sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
+    rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
+    return amount[rows], prob[rows], sub_offsets
+
+
 def _rule_sets(amount, prob, offsets, rho, todo):
     """``(rho, resolution, groups)`` for each set of the groups in ``todo`` that share a rho
     and a quadrature rule: each group gets the rule its own deals need, whatever other
@@ -176,9 +181,7 @@ def _rule_sets(amount, prob, offsets, rho, todo):
     sets = []
     for value in np.unique(rho[todo]):
         groups = np.flatnonzero(todo & (rho == value))
-        sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
-        rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
-        res = group_resolutions(amount[rows], prob[rows], sub_offsets, float(value))
+        res = group_resolutions(*_subset(amount, prob, offsets, groups), float(value))
         keys = np.array([rule_key(float(value), r) for r in res])
         for key in np.unique(keys):
             pick = keys == key
@@ -195,8 +198,8 @@ def _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo):
     rows = []
     for g in np.flatnonzero(todo & (step_req <= 0)):
         a, p = amount[offsets[g]:offsets[g + 1]], prob[offsets[g]:offsets[g + 1]]
-        if (not is_smooth(base.step[g], base.rounding[g])
-                or np.count_nonzero((a != 0) & (p > 0) & (p < 1)) < edgeworth.SMOOTH_MIN_DEALS):
+        uncertain = np.count_nonzero((a != 0) & (p > 0) & (p < 1))
+        if not is_smooth(base.step[g], base.rounding[g]) or uncertain < edgeworth.SMOOTH_MIN_DEALS:
             continue
         group = np.array([0, len(a)], dtype=np.int64)
         z, w = nodes(float(rho[g]), factor_resolution(a, p, group, float(rho[g])))

@@ -185,7 +185,8 @@ def _exact_batch_threads(amount, prob, offsets, step_req, bins, scenario_max, sn
                            snap_explicit, flip)
     cuts = np.searchsorted(offsets, np.linspace(0, offsets[-1], THREADS + 1)[1:-1])
     bounds = [0, *sorted(set(int(c) for c in cuts if 0 < c < n_groups)), n_groups]
-    parts = [(g0, g1, int(offsets[g0]), int(offsets[g1])) for g0, g1 in zip(bounds[:-1], bounds[1:])]
+    parts = [(g0, g1, int(offsets[g0]), int(offsets[g1]))
+             for g0, g1 in zip(bounds[:-1], bounds[1:])]
     plan = new_plan(n_groups, len(amount))
     (status, origin, step, exact, rounding, linear, lo, size, act_amount, act_prob, act_offset,
      act_frac, act_start, act_stop, snapped, snap_origin) = plan

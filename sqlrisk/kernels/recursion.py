@@ -196,7 +196,7 @@ def exact_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, s
         mass_offsets[g + 1] = mass_offsets[g] + size[g]
     mass = np.zeros(mass_offsets[-1])
     fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
-          act_amount, act_offset, act_frac, act_prob, act_start, act_stop)
+         act_amount, act_offset, act_frac, act_prob, act_start, act_stop)
     return LatticeBatch(status, origin, step, exact, rounding, linear, lo, mass_offsets, mass,
                         act_offset, act_frac, act_prob, act_start, act_stop)
 
@@ -210,8 +210,8 @@ def new_plan(n_groups, n_rows):
             np.zeros(n_groups, np.bool_), np.zeros(n_groups), np.zeros(n_groups, np.bool_),
             np.zeros(n_groups, np.int64), np.zeros(n_groups, np.int64),
             np.empty(n_rows), np.empty(n_rows), np.zeros(n_rows, np.int64), np.zeros(n_rows),
-            np.zeros(n_groups, np.int64), np.zeros(n_groups, np.int64), np.zeros(n_groups, np.bool_),
-            np.zeros(n_groups))
+            np.zeros(n_groups, np.int64), np.zeros(n_groups, np.int64),
+            np.zeros(n_groups, np.bool_), np.zeros(n_groups))
 
 
 @njit(cache=True, nogil=True)
@@ -282,10 +282,9 @@ def plan_batch(amount, prob, offsets, step_req, bins, scenario_max, snap_max, sn
             origin[g] = shift + first * h
 
 
-
 @njit(cache=True, nogil=True)
 def fill(mass, mass_offsets, status, step, exact, rounding, linear, lo, snapped, snap_origin,
-          act_amount, act_offset, act_frac, act_prob, act_start, act_stop):
+         act_amount, act_offset, act_frac, act_prob, act_start, act_stop):
     """Each planned linear group's mass: its snapped scenario totals, or the recursion over
     its deals (a snapped group's ``rounding`` and ``exact`` are known only once filled)."""
     for g in range(len(status)):

@@ -11,6 +11,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from pathlib import Path
 
 import duckdb
 import numpy as np
@@ -223,7 +224,7 @@ def case_demo_queries():
         sums = []
         for _ in range(4):  # the first run warms this process up
             con = _TimedConnection(sqlrisk.connect())
-            run_demo(con, __import__("pathlib").Path(tmp))
+            run_demo(con, Path(tmp))
             sums.append(con.seconds)
     queries = min(sums[1:])
     return {"seconds": wall, "reference_seconds": queries,
@@ -231,4 +232,5 @@ def case_demo_queries():
 
 
 CASES = {"G": case_floor, "H": case_sizes, "K": case_counts, "L": case_threads,
-         "M": case_help, "N": case_correlated_large, "P": case_correlated_small, "Q": case_demo_queries}
+         "M": case_help, "N": case_correlated_large, "P": case_correlated_small,
+         "Q": case_demo_queries}
