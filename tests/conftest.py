@@ -4,6 +4,7 @@ and the helpers several test modules use (``one``, ``mass_by_total``, ``udf_mess
 
 from __future__ import annotations
 
+import os
 import re
 from pathlib import Path
 
@@ -35,6 +36,34 @@ def demo_con(con):
         con.execute(f"CREATE TABLE {name} AS SELECT * FROM read_csv(?)",
                     [str(ROOT / "seeds" / f"{name}.csv")])
     return con
+
+
+@pytest.fixture(scope="session")
+def spark():
+    """A local[2] SparkSession with sqlrisk registered, for the tests/test_spark*.py modules.
+
+    Skipped, with the reason printed, when pyspark or Java is missing; a failure instead
+    when SQLRISK_REQUIRE_SPARK=1 (CI sets it, so the Spark tests cannot vanish there).
+    """
+    from sqlrisk.spark.session import java_home
+
+    reason = None
+    try:
+        import pyspark  # noqa: F401
+    except ImportError:
+        reason = "pyspark is not installed (make test installs it with '.[test]')"
+    if reason is None and java_home() is None:
+        reason = "no java on PATH and no JAVA_HOME (Spark needs Java 17 or later)"
+    if reason:
+        if os.environ.get("SQLRISK_REQUIRE_SPARK") == "1":
+            pytest.fail(f"the Spark tests cannot run: {reason}; SQLRISK_REQUIRE_SPARK=1 "
+                        "requires them")
+        pytest.skip(f"Spark tests skipped: {reason}")
+    import sqlrisk.spark
+
+    session = sqlrisk.spark.local_session(2)
+    yield session
+    session.stop()
 
 
 # -- helpers shared by the test modules -----------------------------------------------

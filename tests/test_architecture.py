@@ -5,6 +5,7 @@ Layers, lowest first (DEVELOPERS.md draws them):
 0. ``sqlrisk.kernels.*`` and ``sqlrisk.errors``: numerics on numpy arrays, no DuckDB,
    Arrow or CLI;
 1. ``sqlrisk.adapters.*``: Arrow in, kernel calls, Arrow out; the function catalog;
+   ``sqlrisk.spark.*``, the same bodies registered on Spark;
 2. the application: saved queries, the runner, charts, output formats, the demo;
 3. ``sqlrisk.cli`` and the package's ``__init__``.
 
@@ -34,7 +35,7 @@ MODULES = {module_name(p): p for p in sorted(PACKAGE.rglob("*.py"))}
 def layer(name: str) -> int:
     if name.startswith("sqlrisk.kernels") or name == "sqlrisk.errors":
         return 0
-    if name.startswith("sqlrisk.adapters"):
+    if name.startswith(("sqlrisk.adapters", "sqlrisk.spark")):
         return 1
     if name in ("sqlrisk", "sqlrisk.cli"):
         return 3
