@@ -48,10 +48,12 @@ def test_outcomes_by_two_keys_with_cuts_from_a_quota_join(frames):
     ours = _rows(sqlrisk.spark.outcomes(joined, ["region", "owner_id"], amount="amount",
                                         prob="win_prob", cuts=["floor", "target", "stretch"],
                                         correlation=0.1))
-    theirs = duck_rows(con, "SELECT region, owner_id, outcome_dist(amount, win_prob, "
-                       "correlation := 0.1) AS outcome, band_odds(amount, win_prob, "
-                       "[q.floor, q.target, q.stretch]) AS band_odds FROM pipeline JOIN "
-                       "quota_bands q USING (owner_id) GROUP BY region, owner_id")
+    # with a correlation the bands are read off the correlated outcome
+    theirs = duck_rows(con, "SELECT region, owner_id, outcome, outcome_bands(outcome, cuts) AS "
+                       "band_odds FROM (SELECT region, owner_id, outcome_dist(amount, win_prob, "
+                       "correlation := 0.1) AS outcome, first([q.floor, q.target, q.stretch]) "
+                       "AS cuts FROM pipeline JOIN quota_bands q USING (owner_id) "
+                       "GROUP BY region, owner_id)")
     assert same(ours, theirs) == 240
     assert list(ours[0]) == ["region", "owner_id", "outcome", "band_odds"]
 
@@ -72,6 +74,21 @@ def test_an_unknown_column_is_named_with_a_suggestion(frames):
 
 
 # -- one partition's work, without Spark ------------------------------------------------
+
+def test_one_computation_gives_outcome_dist_and_band_odds_bit_for_bit(con):
+    from sqlrisk.adapters import deal_udfs
+
+    con.register("pipeline", spark_data.pipeline())
+    sql = ("SELECT owner_id, outcome_dist(amount, win_prob) AS o, band_odds(amount, win_prob, "
+           "[9000.0, 30000.0]) AS b, list({{'amount': amount, 'prob': win_prob, 'cuts': "
+           "[9000.0, 30000.0]}}) AS rows FROM pipeline GROUP BY owner_id ORDER BY owner_id")
+    table = con.sql(sql.format()).arrow()
+    table = table.read_all() if hasattr(table, "read_all") else table
+    outcome, bands = deal_udfs.outcomes_and_bands(table.column("rows"))
+    assert outcome.to_pylist() == table.column("o").to_pylist()  # ==, not to a tolerance
+    assert bands.to_pylist() == table.column("b").to_pylist()
+    assert sum(len(r) <= 3 for r in table.column("rows").to_pylist()) > 10  # scenario groups
+
 
 def _sorted_partition():
     table = spark_data.pipeline().rename_columns(
@@ -100,3 +117,14 @@ def test_a_partition_gives_the_same_groups_however_its_batches_fall(monkeypatch,
 def test_group_starts_treat_nulls_and_nans_as_one_key_each():
     table = pa.table({"k": pa.array([None, None, 1.0, float("nan"), float("nan"), 2.0])})
     assert partitions.group_starts(table, ["k"]).tolist() == [0, 2, 3, 5]
+
+
+def test_a_bad_row_is_refused_in_the_name_of_outcomes(frames):
+    deals, _, _ = frames
+    from pyspark.sql import functions as F
+
+    percent = deals.withColumn("pct", F.col("win_prob") * 100)
+    with pytest.raises(Exception) as caught:
+        sqlrisk.spark.outcomes(percent, "owner_id", prob="pct").collect()
+    line = sqlrisk.spark.error_line(caught.value)
+    assert line.startswith("sqlrisk.spark.outcomes: probability ") and "divide by 100" in line

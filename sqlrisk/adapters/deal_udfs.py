@@ -103,6 +103,39 @@ def total_quantiles(rows):
     return readers.read_quantiles(b, qs, q_offsets, (b.valid | small.mask) & ~missing, small)
 
 
+def outcomes_and_bands(rows, step=None, correlation=None):
+    """Per group, ``outcome_dist(amount, prob, step, correlation)`` and band odds for the
+    rows' cuts, from one outcome computation (the Spark DataFrame path).
+
+    Without ``step`` and ``correlation`` the bands are ``band_odds(amount, prob, cuts)``,
+    bit for bit: the groups it answers from their scenarios get their lattice afterwards,
+    the others share it. With either, they are ``outcome_bands`` of the outcome.
+    """
+    fn = "band_odds"
+    groups = arrow_io.read_groups(rows)
+    cuts, cut_offsets, missing = arrow_io.per_group_list(fn, groups, "cuts", "cuts")
+    arrow_io.check_cuts(fn, cuts, cut_offsets)
+    if step is not None or correlation is not None:
+        n = len(groups)
+        step = step if step is not None else pa.nulls(n, pa.float64())
+        rho = correlation if correlation is not None else pa.array(np.zeros(n))
+        b = _deal_outcomes("outcome_dist", groups, arrow_io.steps_requested("outcome_dist", step),
+                           rho)
+        return arrow_io.outcomes_to_arrow(b), readers.read_bands(b, cuts, cut_offsets,
+                                                                 b.valid & ~missing)
+    b, small = _group_answers(fn, groups)
+    bands = readers.read_bands(b, cuts, cut_offsets, (b.valid | small.mask) & ~missing, small)
+    if small.mask.any():
+        todo = np.flatnonzero(small.mask)
+        lengths = np.diff(small.offsets)[todo]
+        idx = arrow_io.ranges(small.offsets[:-1][todo], lengths)
+        part, _ = exact_outcomes(small.amount[idx], small.prob[idx],
+                                 np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64))
+        b = readers.put_rows(b, todo, part)
+    b.valid &= ~groups.null_group
+    return arrow_io.outcomes_to_arrow(b), bands
+
+
 def odds_error(rows):
     """How far ``band_odds`` / ``reach_odds`` on the same deals can be from the true odds,
     for what they read: 0 for the groups answered from their scenarios and for exact

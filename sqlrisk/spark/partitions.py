@@ -15,6 +15,8 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from ..adapters.arrow_io import as_array
+from ..errors import SqlriskError
 from . import conform as cf
 
 FN = "sqlrisk.spark.outcomes"
@@ -54,30 +56,44 @@ def group_starts(table: pa.Table, keys: list[str]) -> np.ndarray:
 
 
 def _compute(table: pa.Table, starts: np.ndarray, keys: list[str], cuts, step, correlation):
+    """The chunk's groups; an error names ``outcomes``, the function the user called."""
+    try:
+        return _compute_groups(table, starts, keys, cuts, step, correlation)
+    except SqlriskError as exc:
+        head, sep, rest = str(exc).partition(": ")
+        if sep and head in ("outcome_dist", "band_odds"):
+            raise type(exc)(f"{FN}: {rest}") from None
+        raise
+
+
+def _compute_groups(table, starts, keys, cuts, step, correlation) -> pa.RecordBatch:
     from ..adapters import deal_udfs  # numba's kernels load on the workers, not on import
 
     n = table.num_rows
     offsets = np.append(starts, n).astype(np.int64)
-    amount = cf.conform(FN, "amount", table.column(AMOUNT), "DOUBLE")
-    prob = cf.conform(FN, "prob", table.column(PROB), "DOUBLE")
-    pairs = pa.StructArray.from_arrays([amount, prob], names=["amount", "prob"])
-    lists = pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), pairs)
+    lists = pa.array(offsets.astype(np.int32))
+    columns = [cf.conform(FN, "amount", table.column(AMOUNT), "DOUBLE"),
+               cf.conform(FN, "prob", table.column(PROB), "DOUBLE")]
     groups = len(starts)
-    out = {k: table.column(k).take(pa.array(starts)) for k in keys}
-    out["outcome"] = deal_udfs.outcome_dist(lists, pa.array([step] * groups, pa.float64()),
-                                            pa.array([correlation] * groups, pa.float64()))
-    if cuts is not None:
-        if isinstance(cuts, str):
-            per_row = cf.conform(FN, "cuts", table.column(CUTS), "DOUBLE[]")
-        else:
-            per_row = cf.per_row(pa.array([list(cuts)] * groups, pa.list_(pa.float64())),
-                                 offsets)
-        with_cuts = pa.StructArray.from_arrays([amount, prob, per_row],
-                                               names=["amount", "prob", "cuts"])
-        out["band_odds"] = deal_udfs.band_odds(
-            pa.ListArray.from_arrays(pa.array(offsets.astype(np.int32)), with_cuts))
-    return pa.RecordBatch.from_pydict({k: pa.array(v) if not isinstance(v, pa.Array) else v
-                                       for k, v in out.items()})
+    out = {k: as_array(table.column(k).take(pa.array(starts))) for k in keys}
+    step_col = None if step is None else pa.array([step] * groups, pa.float64())
+    rho_col = None if not correlation else pa.array([correlation] * groups, pa.float64())
+    if cuts is None:
+        pairs = pa.StructArray.from_arrays(columns, names=["amount", "prob"])
+        out["outcome"] = deal_udfs.outcome_dist(
+            pa.ListArray.from_arrays(lists, pairs),
+            pa.array([step] * groups, pa.float64()),
+            pa.array([float(correlation)] * groups, pa.float64()))
+        return pa.RecordBatch.from_pydict(out)
+    if isinstance(cuts, str):
+        columns.append(cf.conform(FN, "cuts", table.column(CUTS), "DOUBLE[]"))
+    else:
+        per_group = pa.array([list(cuts)] * groups, pa.list_(pa.float64()))
+        columns.append(cf.per_row(per_group, offsets))
+    rows = pa.StructArray.from_arrays(columns, names=["amount", "prob", "cuts"])
+    out["outcome"], out["band_odds"] = deal_udfs.outcomes_and_bands(
+        pa.ListArray.from_arrays(lists, rows), step_col, rho_col)
+    return pa.RecordBatch.from_pydict(out)
 
 
 def _starts_new_group(previous: pa.RecordBatch, batch: pa.RecordBatch, keys: list[str]) -> bool:
