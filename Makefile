@@ -22,6 +22,7 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python -m tests.benchmarks.run
 	$(BIN)/python -m tests.benchmarks.scale
+	$(BIN)/python -m tests.benchmarks.spark
 
 clean:
 	rm -rf $(VENV) .pytest_cache build *.egg-info
