@@ -12,6 +12,8 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
+from pathlib import Path
 
 import numpy as np
 import pyarrow as pa
@@ -364,3 +366,28 @@ def test_spark_only_mistakes_get_one_line_errors(spark, sql, message):
 
 def test_error_line_is_none_for_errors_that_are_not_sqlrisks():
     assert sqlrisk.spark.error_line(ValueError("Traceback...\nZeroDivisionError: x")) is None
+
+
+README = (Path(__file__).resolve().parent.parent / "README.md").read_text()
+
+
+def test_readme_spark_examples_run(engines):
+    spark, _ = engines
+    sql_blocks = re.findall(r"```sql spark\n(.*?)```", README, flags=re.S)
+    py_blocks = re.findall(r"```python spark\n(.*?)```", README, flags=re.S)
+    assert len(sql_blocks) >= 2 and len(py_blocks) >= 2
+    for block in sql_blocks:
+        assert len(spark.sql(block).collect()) == 240, block
+    scope = {"spark": spark}
+    for block in py_blocks:  # in order: the DataFrame example uses the import of the first
+        exec(compile(block, "README.md", "exec"), scope)
+
+
+def test_readme_lists_every_list_form_with_its_arguments():
+    from sqlrisk.spark.udfs import list_params
+
+    for f in FUNCTIONS:
+        if f.kind == "aggregate":
+            lead, _, group, others = list_params(f)
+            names = ", ".join([lead] + [a.name for a in group + others])
+            assert f"`{f.name}_list({names})`" in README, f.name
