@@ -29,7 +29,7 @@ def frames(spark):
 
 
 def _rows(df) -> list[dict]:
-    return [r.asDict(recursive=True) for r in df.collect()]
+    return df.toArrow().to_pylist()
 
 
 def test_outcomes_with_constant_cuts_match_sql(frames):
@@ -64,6 +64,17 @@ def test_outcomes_without_cuts_gives_the_outcome_only(frames):
     theirs = duck_rows(con, "SELECT region, outcome_dist(amount, win_prob) AS outcome "
                        "FROM pipeline GROUP BY region")
     assert same(ours, theirs, "region") == 6
+
+
+def test_outcomes_on_a_requested_step_read_the_bands_off_the_outcome(frames):
+    deals, _, con = frames
+    ours = _rows(sqlrisk.spark.outcomes(deals, "region", prob="win_prob", cuts=[2e5, 3e5],
+                                        step=500.0))
+    theirs = duck_rows(con, "SELECT region, o AS outcome, outcome_bands(o, [2e5, 3e5]) AS "
+                       "band_odds FROM (SELECT region, outcome_dist(amount, win_prob, "
+                       "step := 500.0) AS o FROM pipeline GROUP BY region)")
+    assert same(ours, theirs, "region") == 6
+    assert all(r["outcome"]["step"] == 500.0 for r in ours)
 
 
 def test_an_unknown_column_is_named_with_a_suggestion(frames):

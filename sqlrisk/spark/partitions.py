@@ -76,14 +76,12 @@ def _compute_groups(table, starts, keys, cuts, step, correlation) -> pa.RecordBa
                cf.conform(FN, "prob", table.column(PROB), "DOUBLE")]
     groups = len(starts)
     out = {k: as_array(table.column(k).take(pa.array(starts))) for k in keys}
-    step_col = None if step is None else pa.array([step] * groups, pa.float64())
-    rho_col = None if not correlation else pa.array([correlation] * groups, pa.float64())
+    step_col = pa.array([step] * groups, pa.float64())
+    rho_col = pa.array([float(correlation)] * groups, pa.float64())
     if cuts is None:
         pairs = pa.StructArray.from_arrays(columns, names=["amount", "prob"])
-        out["outcome"] = deal_udfs.outcome_dist(
-            pa.ListArray.from_arrays(lists, pairs),
-            pa.array([step] * groups, pa.float64()),
-            pa.array([float(correlation)] * groups, pa.float64()))
+        out["outcome"] = deal_udfs.outcome_dist(pa.ListArray.from_arrays(lists, pairs),
+                                                step_col, rho_col)
         return pa.RecordBatch.from_pydict(out)
     if isinstance(cuts, str):
         columns.append(cf.conform(FN, "cuts", table.column(CUTS), "DOUBLE[]"))
@@ -91,8 +89,9 @@ def _compute_groups(table, starts, keys, cuts, step, correlation) -> pa.RecordBa
         per_group = pa.array([list(cuts)] * groups, pa.list_(pa.float64()))
         columns.append(cf.per_row(per_group, offsets))
     rows = pa.StructArray.from_arrays(columns, names=["amount", "prob", "cuts"])
+    shared = step is None and not correlation  # band_odds' own reading, one lattice for both
     out["outcome"], out["band_odds"] = deal_udfs.outcomes_and_bands(
-        pa.ListArray.from_arrays(lists, rows), step_col, rho_col)
+        pa.ListArray.from_arrays(lists, rows), *((None, None) if shared else (step_col, rho_col)))
     return pa.RecordBatch.from_pydict(out)
 
 
