@@ -148,6 +148,8 @@ def test_aggregates_on_deals_match_duckdb(engines):
     ours = spark_rows(spark, _select(DEAL_AGGREGATES, "array(q.floor, q.target, q.stretch)",
                                      "array(0.1, 0.5, 0.9)"))
     assert same(ours, theirs) == 240
+    theirs_by = by_key(theirs)
+    assert all(r["sim"] == theirs_by[r["owner_id"]]["sim"] for r in ours)  # bit for bit
     # the seller whose rows are all NULL gets NULLs, as SQL aggregates over no rows do
     nulls = by_key(ours)[spark_data.ALL_NULL]
     assert all(nulls[k] is None for k in DEAL_AGGREGATES)
