@@ -60,10 +60,13 @@ def test_outcomes_by_two_keys_with_cuts_from_a_quota_join(frames):
 
 def test_outcomes_without_cuts_gives_the_outcome_only(frames):
     deals, _, con = frames
-    ours = _rows(sqlrisk.spark.outcomes(deals.withColumnRenamed("win_prob", "prob"), "region"))
-    theirs = duck_rows(con, "SELECT region, outcome_dist(amount, win_prob) AS outcome "
-                       "FROM pipeline GROUP BY region")
-    assert same(ours, theirs, "region") == 6
+    # column names with a dot and a space are names, not struct paths
+    renamed = deals.withColumnRenamed("win_prob", "prob").withColumnRenamed("region", "sales.area")
+    ours = _rows(sqlrisk.spark.outcomes(renamed.withColumnRenamed("amount", "deal value"),
+                                        "sales.area", amount="deal value"))
+    theirs = duck_rows(con, 'SELECT region AS "sales.area", outcome_dist(amount, win_prob) AS '
+                       "outcome FROM pipeline GROUP BY region")
+    assert same(ours, theirs, "sales.area") == 6
 
 
 def test_outcomes_on_a_requested_step_read_the_bands_off_the_outcome(frames):

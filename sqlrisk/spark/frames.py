@@ -13,7 +13,7 @@ from functools import partial
 from ..errors import QueryLookupError, SqlriskError, did_you_mean
 from ..adapters.sql_types import OUTCOME_SQL
 from .ddl import spark_ddl
-from .partitions import AMOUNT, CUTS, PROB, group_outcomes
+from .partitions import AMOUNT, CUTS, KEY, PROB, group_outcomes
 
 
 def _column(df, name: str, what: str) -> str:
@@ -22,6 +22,18 @@ def _column(df, name: str, what: str) -> str:
                                f"{did_you_mean(name, df.columns)}; its columns are "
                                f"{', '.join(df.columns)}")
     return name
+
+
+def _keys(df, by) -> list[str]:
+    keys = [by] if isinstance(by, str) else list(by)
+    if not keys:
+        raise SqlriskError("outcomes: give at least one group key in by")
+    for k in keys:
+        _column(df, k, "a group key")
+        if k in ("outcome", "band_odds"):
+            raise SqlriskError(f"outcomes: a group key may not be named {k!r} (a result "
+                               "column has that name); rename it with withColumnRenamed")
+    return keys
 
 
 def outcomes(df, by, amount: str = "amount", prob: str = "prob", cuts=None, *,
@@ -47,31 +59,32 @@ def outcomes(df, by, amount: str = "amount", prob: str = "prob", cuts=None, *,
     from pyspark.sql import functions as F
     from pyspark.sql.types import DataType, StructField, StructType
 
-    keys = [by] if isinstance(by, str) else list(by)
-    if not keys:
-        raise SqlriskError("outcomes: give at least one group key in by")
-    for k in keys:
-        _column(df, k, "a group key")
-    for k in keys:
-        if k in ("outcome", "band_odds"):
-            raise SqlriskError(f"outcomes: a group key may not be named {k!r} (a result "
-                               "column has that name); rename it with withColumnRenamed")
-    columns = [F.col(k) for k in keys]
-    columns += [F.col(_column(df, amount, "amount")).alias(AMOUNT),
-                F.col(_column(df, prob, "prob")).alias(PROB)]
+    keys = _keys(df, by)
+
+    def col(name: str):  # backticks: a name with a dot or a space is one column, not a path
+        return F.col("`" + name.replace("`", "``") + "`")
+
+    # The keys travel under plain names of our own (pyspark's mapInArrow cannot look up a
+    # column whose name has a dot) and get theirs back at the end.
+    inner = [f"{KEY}{i}" for i in range(len(keys))]
+    columns = [col(k).alias(name) for k, name in zip(keys, inner)]
+    columns += [col(_column(df, amount, "amount")).alias(AMOUNT),
+                col(_column(df, prob, "prob")).alias(PROB)]
     constant_cuts = None
     if isinstance(cuts, str):
-        columns.append(F.col(_column(df, cuts, "cuts")).alias(CUTS))
+        columns.append(col(_column(df, cuts, "cuts")).alias(CUTS))
     elif cuts is not None and len(cuts) and all(isinstance(c, str) for c in cuts):
-        columns.append(F.array(*[F.col(_column(df, c, "a cut")) for c in cuts]).alias(CUTS))
+        columns.append(F.array(*[col(_column(df, c, "a cut")) for c in cuts]).alias(CUTS))
     elif cuts is not None:
         constant_cuts = [float(c) for c in cuts]
-    fields = [df.schema[k] for k in keys]
+    fields = [StructField(name, df.schema[k].dataType) for k, name in zip(keys, inner)]
     fields.append(StructField("outcome", DataType.fromDDL(spark_ddl(OUTCOME_SQL))))
+    names = [*keys, "outcome"]
     if cuts is not None:
         fields.append(StructField("band_odds", DataType.fromDDL("array<double>")))
-    work = partial(group_outcomes, keys=keys,
+        names.append("band_odds")
+    work = partial(group_outcomes, keys=inner,
                    cuts=constant_cuts if constant_cuts is not None else (CUTS if cuts else None),
                    step=step, correlation=correlation)
-    data = df.select(*columns).repartition(*keys).sortWithinPartitions(*keys)
-    return data.mapInArrow(work, StructType(fields))
+    data = df.select(*columns).repartition(*inner).sortWithinPartitions(*inner)
+    return data.mapInArrow(work, StructType(fields)).toDF(*names)

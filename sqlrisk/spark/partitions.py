@@ -22,7 +22,7 @@ from . import conform as cf
 FN = "sqlrisk.spark.outcomes"
 #: Rows gathered before a chunk is computed (one kernel call covers many groups).
 CHUNK_ROWS = 200_000
-AMOUNT, PROB, CUTS = "__sqlrisk_amount", "__sqlrisk_prob", "__sqlrisk_cuts"
+AMOUNT, PROB, CUTS, KEY = "__sqlrisk_amount", "__sqlrisk_prob", "__sqlrisk_cuts", "__sqlrisk_key"
 
 
 def _changes(col: pa.Array) -> np.ndarray:
