@@ -16,7 +16,7 @@ import pyarrow as pa
 
 from ..errors import InputDataError, ParameterError
 from ..kernels.outcome import OutcomeBatch
-from ..kernels.ragged import lists_agree
+from ..kernels.ragged import lists_agree, ranges
 from .sql_types import OUTCOME_FIELDS
 
 MASS_TOL = 1e-9
@@ -320,16 +320,6 @@ def _first_live_row(nulls: np.ndarray, offsets: np.ndarray) -> np.ndarray:
     if n_rows:
         first[nonempty] = np.minimum.reduceat(rows, offsets[:-1][nonempty])
     return np.where(first >= n_rows, -1, first)
-
-
-def ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
-    """Concatenation of ``arange(s, s + c)`` for every pair, vectorised."""
-    total = int(counts.sum())
-    if total == 0:
-        return np.zeros(0, dtype=np.int64)
-    ends = np.cumsum(counts)
-    idx = np.arange(total, dtype=np.int64) - np.repeat(ends - counts, counts)
-    return idx + np.repeat(starts, counts)
 
 
 def per_group_scalar(fn: str, groups: Groups, name: str, what: str):

@@ -15,7 +15,9 @@ from ..errors import ParameterError
 from ..kernels import accuracy, heavy, scenarios
 from ..kernels.copula import correlated_outcomes
 from ..kernels.lattice import DEFAULT_BINS, MAX_BINS
-from ..kernels.outcome import SCENARIOS, TOO_MANY_BINS, OutcomeBatch, exact_outcomes
+from ..kernels.outcome import (SCENARIOS, TOO_MANY_BINS, OutcomeBatch, exact_outcomes,
+                               put_rows)
+from ..kernels.ragged import group_deals
 from ..kernels.swing import swings
 from . import arrow_io, readers
 from .sql_types import SWING_FIELDS
@@ -127,11 +129,8 @@ def outcomes_and_bands(rows, step=None, correlation=None):
     bands = readers.read_bands(b, cuts, cut_offsets, (b.valid | small.mask) & ~missing, small)
     if small.mask.any():
         todo = np.flatnonzero(small.mask)
-        lengths = np.diff(small.offsets)[todo]
-        idx = arrow_io.ranges(small.offsets[:-1][todo], lengths)
-        part, _ = exact_outcomes(small.amount[idx], small.prob[idx],
-                                 np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64))
-        b = readers.put_rows(b, todo, part)
+        part, _ = exact_outcomes(*group_deals(small.amount, small.prob, small.offsets, todo))
+        b = put_rows(b, todo, part)
     b.valid &= ~groups.null_group
     return arrow_io.outcomes_to_arrow(b), bands
 

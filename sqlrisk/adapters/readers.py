@@ -37,27 +37,6 @@ def subset_batch(b: OutcomeBatch, keep: np.ndarray) -> OutcomeBatch:
                         b.trials[keep], b.rounding[keep], b.valid[keep])
 
 
-def put_rows(base: OutcomeBatch, groups: np.ndarray, part: OutcomeBatch) -> OutcomeBatch:
-    """``base`` with its rows ``groups`` (increasing) replaced by the rows of ``part``, in order."""
-    lengths = np.diff(base.offsets)
-    lengths_new = lengths.copy()
-    lengths_new[groups] = np.diff(part.offsets)
-    offsets = np.concatenate([[0], np.cumsum(lengths_new)]).astype(np.int64)
-    kept = np.ones(len(base), dtype=bool)
-    kept[groups] = False
-    mass = np.empty(offsets[-1])
-    mass[arrow_io.ranges(offsets[:-1][kept], lengths[kept])] = \
-        base.mass[arrow_io.ranges(base.offsets[:-1][kept], lengths[kept])]
-    mass[arrow_io.ranges(offsets[:-1][groups], lengths_new[groups])] = part.mass
-    columns = []
-    for name in ("origin", "step", "trials", "rounding", "valid"):
-        column = getattr(base, name).copy()
-        column[groups] = getattr(part, name)
-        columns.append(column)
-    origin, step, trials, rounding, valid = columns
-    return OutcomeBatch(origin, step, mass, offsets, trials, rounding, valid)
-
-
 def ragged_subset(values, offsets, keep):
     """The rows ``keep`` of a ragged column (flat ``values``, ``offsets``)."""
     if keep.all():

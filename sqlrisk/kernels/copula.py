@@ -47,6 +47,7 @@ from scipy.special import ndtr, ndtri
 from . import edgeworth
 from .lattice import DEFAULT_BINS, automatic_step, common_unit, group_moments
 from .outcome import OK, exact_outcomes, splice
+from .ragged import group_deals
 from .readout import is_smooth
 
 NODES = 64
@@ -156,7 +157,7 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     base, smooth = _smooth_groups(amount, prob, offsets, rho, step_req, bins, base, todo)
     todo &= ~smooth
     for value, resolution, groups in _rule_sets(amount, prob, offsets, rho, todo):
-        a, p, sub_offsets = _subset(amount, prob, offsets, groups)
+        a, p, sub_offsets = group_deals(amount, prob, offsets, groups)
         rho_rows = np.full(len(a), value)
         z, w = nodes(value, resolution)
         covers = (np.diff(base.offsets)[groups] - 1) * base.step[groups]
@@ -167,13 +168,6 @@ def correlated_outcomes(amount, prob, offsets, rho, step_req=None, bins: int = D
     return base, status
 
 
-def _subset(amount, prob, offsets, groups):
-    """The deals of ``groups``, back to back, and their offsets."""
-    sub_offsets = np.concatenate([[0], np.cumsum(np.diff(offsets)[groups])]).astype(np.int64)
-    rows = np.concatenate([np.arange(offsets[g], offsets[g + 1]) for g in groups])
-    return amount[rows], prob[rows], sub_offsets
-
-
 def _rule_sets(amount, prob, offsets, rho, todo):
     """``(rho, resolution, groups)`` for each set of the groups in ``todo`` that share a rho
     and a quadrature rule: each group gets the rule its own deals need, whatever other
@@ -181,7 +175,7 @@ def _rule_sets(amount, prob, offsets, rho, todo):
     sets = []
     for value in np.unique(rho[todo]):
         groups = np.flatnonzero(todo & (rho == value))
-        res = group_resolutions(*_subset(amount, prob, offsets, groups), float(value))
+        res = group_resolutions(*group_deals(amount, prob, offsets, groups), float(value))
         keys = np.array([rule_key(float(value), r) for r in res])
         for key in np.unique(keys):
             pick = keys == key

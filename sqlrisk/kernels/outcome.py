@@ -17,6 +17,7 @@ import numpy as np
 from .lattice import DEFAULT_BINS, EMPTY, MAX_BINS, OK, SCENARIOS, TOO_MANY_BINS
 from .lattice import tail_window as window
 from .order import canonical_order
+from .ragged import ranges
 from .recursion import LatticeBatch, exact_batch, fill, new_plan, plan_batch
 from .scenarios import SNAP_DEALS
 from .spectral import fold_group
@@ -30,8 +31,8 @@ PARALLEL_MIN_DEALS = 20_000
 #: Deals per leaf of the pooled computation.
 LEAF_DEALS = 256
 
-__all__ = ["OutcomeBatch", "concat", "exact_outcomes", "splice", "EMPTY", "OK", "SCENARIOS",
-           "TOO_MANY_BINS"]
+__all__ = ["OutcomeBatch", "concat", "exact_outcomes", "put_rows", "splice", "EMPTY", "OK",
+           "SCENARIOS", "TOO_MANY_BINS"]
 
 
 @dataclass
@@ -307,3 +308,25 @@ def splice(base: OutcomeBatch, groups, rows) -> OutcomeBatch:
             row = base.row(g)
         mass[offsets[g]:offsets[g + 1]] = row
     return OutcomeBatch(origin, step, mass, offsets, base.trials, rounding, base.valid)
+
+
+def put_rows(base: OutcomeBatch, groups: np.ndarray, part: OutcomeBatch) -> OutcomeBatch:
+    """``base`` with its rows ``groups`` (increasing) replaced by the rows of ``part``, in
+    order (``splice`` takes the new rows as tuples and keeps ``trials`` and ``valid``)."""
+    lengths = np.diff(base.offsets)
+    lengths_new = lengths.copy()
+    lengths_new[groups] = np.diff(part.offsets)
+    offsets = np.concatenate([[0], np.cumsum(lengths_new)]).astype(np.int64)
+    kept = np.ones(len(base), dtype=bool)
+    kept[groups] = False
+    mass = np.empty(offsets[-1])
+    mass[ranges(offsets[:-1][kept], lengths[kept])] = \
+        base.mass[ranges(base.offsets[:-1][kept], lengths[kept])]
+    mass[ranges(offsets[:-1][groups], lengths_new[groups])] = part.mass
+    columns = []
+    for name in ("origin", "step", "trials", "rounding", "valid"):
+        column = getattr(base, name).copy()
+        column[groups] = getattr(part, name)
+        columns.append(column)
+    origin, step, trials, rounding, valid = columns
+    return OutcomeBatch(origin, step, mass, offsets, trials, rounding, valid)

@@ -1,8 +1,27 @@
-"""Checks on ragged lists (values back to back, delimited by offsets)."""
+"""Ragged lists (values back to back, delimited by offsets): index ranges, a subset of
+groups, and the check that per-group lists agree."""
 
 from __future__ import annotations
 
+import numpy as np
 from numba import njit
+
+
+def ranges(starts: np.ndarray, counts: np.ndarray) -> np.ndarray:
+    """Concatenation of ``arange(s, s + c)`` for every pair, vectorised."""
+    total = int(counts.sum())
+    if total == 0:
+        return np.zeros(0, dtype=np.int64)
+    ends = np.cumsum(counts)
+    idx = np.arange(total, dtype=np.int64) - np.repeat(ends - counts, counts)
+    return idx + np.repeat(starts, counts)
+
+
+def group_deals(amount, prob, offsets, groups):
+    """The deals of ``groups`` (indices, in order), back to back, and their offsets."""
+    lengths = np.diff(offsets)[groups]
+    rows = ranges(np.asarray(offsets)[:-1][groups], lengths)
+    return amount[rows], prob[rows], np.concatenate([[0], np.cumsum(lengths)]).astype(np.int64)
 
 
 @njit(cache=True, nogil=True)
