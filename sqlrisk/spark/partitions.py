@@ -16,8 +16,8 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from ..adapters.arrow_io import as_array
-from ..errors import SqlriskError
 from . import conform as cf
+from .udfs import named_as
 
 FN = "sqlrisk.spark.outcomes"
 #: Rows gathered before a chunk is computed (one kernel call covers many groups).
@@ -57,13 +57,8 @@ def group_starts(table: pa.Table, keys: list[str]) -> np.ndarray:
 
 def _compute(table: pa.Table, starts: np.ndarray, keys: list[str], cuts, step, correlation):
     """The chunk's groups; an error names ``outcomes``, the function the user called."""
-    try:
+    with named_as(FN, "outcome_dist", "band_odds"):
         return _compute_groups(table, starts, keys, cuts, step, correlation)
-    except SqlriskError as exc:
-        head, sep, rest = str(exc).partition(": ")
-        if sep and head in ("outcome_dist", "band_odds"):
-            raise type(exc)(f"{FN}: {rest}") from None
-        raise
 
 
 def _compute_groups(table, starts, keys, cuts, step, correlation) -> pa.RecordBatch:

@@ -20,11 +20,12 @@ hands these functions to pyspark.
 from __future__ import annotations
 
 import inspect
+from contextlib import contextmanager
 
 import numpy as np
 import pyarrow as pa
 
-from ..adapters.arrow_io import as_array
+from ..adapters.arrow_io import as_array, read_groups
 from ..adapters.catalog import Arg, SqlFunction
 from ..errors import ParameterError, SqlriskError, did_you_mean
 from . import conform as cf
@@ -32,6 +33,19 @@ from . import conform as cf
 #: Per-row arguments of DuckDB's aggregates that are one value per group: in a list form
 #: they are arguments of their own, beside the list of deals.
 GROUP_LEVEL = ("cuts", "target", "qs")
+
+
+@contextmanager
+def named_as(fn: str, *bodies: str):
+    """sqlrisk errors raised inside, whose message starts with one of ``bodies``' names
+    (``band_odds: ...``), re-raised in the name of ``fn``, the function the user called."""
+    try:
+        yield
+    except SqlriskError as exc:
+        head, sep, rest = str(exc).partition(": ")
+        if sep and head in bodies:
+            raise type(exc)(f"{fn}: {rest}") from None
+        raise
 
 
 def list_name(f: SqlFunction) -> str:
@@ -151,12 +165,13 @@ def _others(fn: str, f: SqlFunction, given: dict) -> list[pa.Array]:
 
 
 def _carried_back(result: pa.Array, ids: pa.Array, offsets: np.ndarray) -> pa.Array:
-    """``deal_swing``'s positions turned back into the deals' ids (as text)."""
+    """``deal_swing``'s positions turned back into the deals' ids (``ids``: the rows' ids as
+    text, as packed for the body)."""
     lists = as_array(result)
     items = lists.values
     starts = np.repeat(offsets[:-1], np.diff(np.asarray(lists.offsets)))
     pos = starts + np.asarray(items.field("i"), dtype=np.int64) - 1
-    text = _text(ids).take(pa.array(pos))
+    text = ids.take(pa.array(pos))
     kept = [items.field(k) for k in ("reach_if_won", "reach_if_lost", "swing")]
     out = pa.StructArray.from_arrays([text, *kept],
                                      names=["deal_id", "reach_if_won", "reach_if_lost", "swing"])
@@ -183,7 +198,7 @@ def aggregate_udf(f: SqlFunction):
         result = body.resolve()(listed, *others)
         if any(a.carried for a in f.args):
             carried = next(a for a in f.args if a.carried)
-            result = _carried_back(result, given[carried.name], np.array([0, n]))
+            result = _carried_back(result, rows.field(carried.name), np.array([0, n]))
         answer = as_array(result)[0]
         return answer if answer.is_valid else None  # pyarrow cannot list a NULL list scalar
 
@@ -209,16 +224,15 @@ def list_params(f: SqlFunction) -> tuple[str, list[Arg], list[Arg], list[Arg]]:
 
 def _list_rows(fn: str, f: SqlFunction, deals, lead: str, fields: list[Arg]):
     """A ``collect_list(named_struct(...))`` column: its structs' fields by name, the
-    offsets (from 0) and the NULL-list mask."""
+    offsets (from 0) and which lists are NULL."""
     arr = as_array(deals)
     if not (pa.types.is_list(arr.type) or pa.types.is_large_list(arr.type)):
         raise ParameterError(f"{fn}: {lead} must be a collect_list(...) of the group's rows, "
                              f"got Spark type {arr.type}")
-    offsets = np.asarray(arr.offsets, dtype=np.int64)
-    values = arr.values.slice(offsets[0], offsets[-1] - offsets[0])
-    offsets = offsets - offsets[0]
+    groups = read_groups(arr)
+    values, offsets = groups.fields, groups.offsets
     if len(fields) == 1 and not fields[0].carried:
-        return {fields[0].name: values}, offsets, arr
+        return {fields[0].name: values}, offsets, groups.null_group
     wanted = ", ".join(f"'{a.name}', {a.name}" for a in fields if a.default is None)
     if not pa.types.is_struct(values.type):
         raise ParameterError(f"{fn}: {lead} must be collect_list(named_struct({wanted})), "
@@ -232,7 +246,7 @@ def _list_rows(fn: str, f: SqlFunction, deals, lead: str, fields: list[Arg]):
             raise ParameterError(
                 f"{fn}: {lead} has no field {a.name!r} (its fields: {', '.join(have)}); "
                 f"build it with collect_list(named_struct({wanted}))")
-    return out, offsets, arr
+    return out, offsets, groups.null_group
 
 
 def list_udf(f: SqlFunction):
@@ -244,25 +258,20 @@ def list_udf(f: SqlFunction):
 
     def call(*cols, **named):
         given = _bind(fn, names, required, cols, named)
-        rows, offsets, arr = _list_rows(fn, f, given[lead], lead, fields)
-        n_groups = len(arr)
+        rows, offsets, null_list = _list_rows(fn, f, given[lead], lead, fields)
+        n_groups = len(offsets) - 1
         for a in group:
             rows[a.name] = cf.per_row(cf.conform(fn, a.name, given[a.name], a.sql_type), offsets)
         packed = _rows_struct(fn, f, rows, int(offsets[-1]))
-        mask = arr.is_null() if arr.null_count else None
+        mask = pa.array(null_list) if null_list.any() else None
         listed = pa.ListArray.from_arrays(pa.array(offsets, pa.int64()).cast(pa.int32()),
                                           packed, mask=mask)
         extra = [_value(fn, a, given, n_groups) for a in others]
-        try:
+        with named_as(fn, f.name):
             result = body.resolve()(listed, *extra)
-        except SqlriskError as exc:  # the message names the function the user called
-            text = str(exc)
-            if text.startswith(f"{f.name}:"):
-                raise type(exc)(fn + text[len(f.name):]) from None
-            raise
         carried = [a for a in f.args if a.carried]
         if carried:
-            result = _carried_back(result, rows[carried[0].name], offsets)
+            result = _carried_back(result, packed.field(carried[0].name), offsets)
         return as_array(result)
 
     call.__name__ = fn
