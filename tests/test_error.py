@@ -78,12 +78,12 @@ def _correlated_reference(units, probs, rho, rng):
     threshold = ndtri(probs)
     for a, t in zip(units, threshold):
         cond = ndtr((t - math.sqrt(rho) * z) / math.sqrt(1 - rho))[:, None]
-        moved = np.zeros_like(f)
+        moved = (1 - cond) * f  # the shifted part added in place: the same sums, no zeros
         if a >= 0:
-            moved[:, a:] = f[:, :f.shape[1] - a]
+            moved[:, a:] += cond * f[:, :f.shape[1] - a]
         else:
-            moved[:, :a] = f[:, -a:]
-        f = (1 - cond) * f + cond * moved
+            moved[:, :a] += cond * f[:, -a:]
+        f = moved
     pmf = weight @ f
     pmf /= pmf.sum()
     values = first + np.flatnonzero(pmf > 0)
